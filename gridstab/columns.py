@@ -1,0 +1,479 @@
+"""``diagnose_columns``: every stability diagnostic for arrays of model columns.
+
+This is the single entry point of the column physics. It takes plain arrays shaped
+(columns, levels), with levels in either order and missing (NaN) or below-ground
+levels anywhere, and returns a dict of plain arrays. One compiled loop visits each
+column once: it compacts the valid levels bottom-up, computes heights, per-level
+theta/theta_e/theta_es, the per-layer classes, the thick layers and the three
+parcels, sharing the work between them. Columns never influence each other.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Literal
+
+import numba
+import numpy as np
+
+from gridstab.adiabats import (
+    LN_REFERENCE_PRESSURE,
+    adiabat_tables,
+    ln_theta_e_from_logs,
+    ln_theta_e_scalar,
+    ln_theta_es_scalar,
+)
+from gridstab.constants import DRY_AIR_GAS_CONSTANT, KAPPA, STANDARD_GRAVITY
+from gridstab.layers import LAYER_FIELDS, layer_diagnostics
+from gridstab.parcels import (
+    PARCEL_FIELDS,
+    PARCEL_NAMES,
+    lift_parcel,
+    pressure_stencil_or_none,
+    mixed_layer_parcel,
+    most_unstable_level,
+)
+from gridstab.profile import bracket, linear
+from gridstab.thermo import potential_temperature_scalar, virtual_temperature_scalar
+
+MIXING_RATIO_FLOOR = 1e-10
+"""Mixing ratios below this (kg/kg), negative ones included, are raised to it."""
+
+PARCEL_SUFFIXES = {"surface_based": "sb", "mixed_layer": "ml", "most_unstable": "mu"}
+THICK_LAYERS = ("low3km", "850_500")
+
+
+@dataclass(frozen=True)
+class ColumnOptions:
+    """Settings of the column physics (the ``[physics]`` section of a config file)."""
+
+    ascent: Literal["pseudo", "reversible"] = field(
+        default="pseudo",
+        metadata={"doc": "saturated ascent: 'pseudo' (condensate falls out) or 'reversible'"},
+    )
+    virtual_temperature_correction: bool = field(
+        default=True,
+        metadata={"doc": "compare virtual (density) temperatures for buoyancy"},
+    )
+    mixed_layer_depth_hpa: float = field(
+        default=100.0, metadata={"doc": "depth of the mixed-layer parcel's layer above ground, hPa"}
+    )
+    most_unstable_depth_hpa: float = field(
+        default=300.0,
+        metadata={"doc": "depth above ground searched for the most-unstable parcel, hPa"},
+    )
+    dry_neutral_band_k_per_km: float = field(
+        default=0.3, metadata={"doc": "half-width of the dry-neutral band of lapse rates, K/km"}
+    )
+    moist_neutral_band_k_per_km: float = field(
+        default=0.3, metadata={"doc": "half-width of the moist-neutral band of lapse rates, K/km"}
+    )
+    low_layer_depth_m: float = field(
+        default=3000.0, metadata={"doc": "depth of the low thick layer above ground, m"}
+    )
+    upper_layer_bottom_hpa: float = field(
+        default=850.0, metadata={"doc": "bottom of the upper thick layer, hPa"}
+    )
+    upper_layer_top_hpa: float = field(
+        default=500.0, metadata={"doc": "top of the upper thick layer, hPa"}
+    )
+    lifted_index_pressure_hpa: float = field(
+        default=500.0, metadata={"doc": "pressure of the lifted index, hPa"}
+    )
+
+    def __post_init__(self):
+        if self.ascent not in ("pseudo", "reversible"):
+            raise ValueError(f"ascent must be 'pseudo' or 'reversible', got {self.ascent!r}")
+        positive = (
+            "mixed_layer_depth_hpa",
+            "most_unstable_depth_hpa",
+            "low_layer_depth_m",
+            "upper_layer_bottom_hpa",
+            "upper_layer_top_hpa",
+            "lifted_index_pressure_hpa",
+        )
+        for name in positive:
+            value = getattr(self, name)
+            if not (isinstance(value, (int, float)) and math.isfinite(value) and value > 0):
+                raise ValueError(f"{name} must be a positive number, got {value!r}")
+        for name in ("dry_neutral_band_k_per_km", "moist_neutral_band_k_per_km"):
+            value = getattr(self, name)
+            if not (isinstance(value, (int, float)) and 0 <= value < 5):
+                raise ValueError(f"{name} must be between 0 and 5 K/km, got {value!r}")
+        if not self.upper_layer_top_hpa < self.upper_layer_bottom_hpa:
+            raise ValueError(
+                "upper_layer_top_hpa must be a lower pressure than upper_layer_bottom_hpa, got "
+                f"{self.upper_layer_top_hpa} and {self.upper_layer_bottom_hpa}"
+            )
+        if self.mixed_layer_depth_hpa > 500 or self.most_unstable_depth_hpa > 700:
+            raise ValueError("mixed_layer_depth_hpa must be <= 500 and most_unstable_depth_hpa <= 700")
+
+
+def output_names(nlev: int | None = None) -> dict[str, str]:
+    """Every output of :func:`diagnose_columns` and its kind: 'column', 'level' or 'layer'."""
+    names: dict[str, str] = {}
+    for parcel in PARCEL_NAMES:
+        for name in PARCEL_FIELDS:
+            names[f"{name}_{PARCEL_SUFFIXES[parcel]}"] = "column"
+    for layer in THICK_LAYERS:
+        for name in LAYER_FIELDS:
+            names[f"{name}_{layer}"] = "column"
+    for name in ("theta", "theta_e", "theta_es"):
+        names[name] = "level"
+    for name in LAYER_FIELDS:
+        names[f"layer_{name}"] = "layer"
+    return names
+
+
+OUTPUTS = output_names()
+INTEGER_OUTPUTS = {
+    name
+    for name in OUTPUTS
+    if any(key in name for key in ("stability_class", "potential_instability", "el_at_data_top"))
+}
+
+
+@numba.njit(cache=True, nogil=True)
+def _compact(
+    c, pressure, temperature, mixing_ratio, height, has_height, surface_pressure, has_surface,
+    surface_t, surface_r, has_surface_air,
+    P, LNP, T, R, Z, IDX,
+):
+    """Copy column c's valid levels bottom-up into the work arrays; return their count."""
+    nlev = pressure.shape[1]
+    first = -1
+    last = -1
+    for k in range(nlev):
+        if math.isfinite(pressure[c, k]) and pressure[c, k] > 0.0:
+            if first < 0:
+                first = k
+            last = k
+    if first < 0:
+        return 0
+    top_down = pressure[c, first] < pressure[c, last]
+    ps = surface_pressure[c] if has_surface else math.inf
+    count = 0
+    if has_surface and has_surface_air:
+        if math.isfinite(ps) and math.isfinite(surface_t[c]) and math.isfinite(surface_r[c]):
+            P[0] = ps
+            T[0] = surface_t[c]
+            R[0] = max(surface_r[c], MIXING_RATIO_FLOOR)
+            Z[0] = math.nan
+            IDX[0] = -1
+            count = 1
+    for step in range(nlev):
+        k = nlev - 1 - step if top_down else step
+        p = pressure[c, k]
+        t = temperature[c, k]
+        r = mixing_ratio[c, k]
+        if not (math.isfinite(p) and math.isfinite(t) and math.isfinite(r) and p > 0.0):
+            continue
+        if has_height and not math.isfinite(height[c, k]):
+            continue
+        if p > ps:
+            continue  # below ground
+        if count > 0 and p >= P[count - 1]:
+            if IDX[count - 1] == -1 and p > P[count - 1] - 1.0:
+                # a level at the surface replaces the surface values
+                count -= 1
+            else:
+                continue  # not above the previous level
+        P[count] = p
+        T[count] = t
+        R[count] = max(r, MIXING_RATIO_FLOOR)
+        Z[count] = height[c, k] if has_height else math.nan
+        IDX[count] = k
+        count += 1
+    return count
+
+
+@numba.njit(cache=True, nogil=True)
+def _thick_layer_state(target_ln_p, LNP, T, R, Z, count, label, theta_e_table):
+    """(T, theta, ln theta_e, ln theta_es, z) at ln p inside the column; NaN outside."""
+    k = bracket(LNP, count, target_ln_p)
+    if k < 0:
+        return math.nan, math.nan, math.nan, math.nan, math.nan
+    if k == count - 1:
+        k = count - 2
+    p = math.exp(target_ln_p)
+    t = linear(LNP, T, k, target_ln_p)
+    r = linear(LNP, R, k, target_ln_p)
+    z = linear(LNP, Z, k, target_ln_p)
+    return (
+        t,
+        potential_temperature_scalar(t, p),
+        ln_theta_e_scalar(t, p, r, theta_e_table),
+        ln_theta_es_scalar(t, p, label),
+        z,
+    )
+
+
+@numba.njit(cache=True, nogil=True)
+def _diagnose(
+    pressure, temperature, mixing_ratio, height, has_height,
+    surface_pressure, has_surface, surface_height, has_surface_height,
+    surface_t, surface_r, has_surface_air,
+    reversible, virtual, ml_depth, mu_depth, dry_band, moist_band,
+    low_depth, upper_bottom, upper_top, li_pressure,
+    parcel_table, label, theta_e_table,
+    parcels_out, thick_out, level_out, layer_out,
+):
+    ncol, nlev = pressure.shape
+    size = nlev + 1
+    P = np.empty(size)
+    LNP = np.empty(size)
+    T = np.empty(size)
+    R = np.empty(size)
+    TV = np.empty(size)
+    Z = np.empty(size)
+    TH = np.empty(size)
+    LTHE = np.empty(size)
+    LTHES = np.empty(size)
+    MINTH = np.empty(size)
+    IDX = np.empty(size, dtype=np.int64)
+    LEVEL_STENCIL = np.empty(size, dtype=np.int64)
+    MID_STENCIL = np.empty(size, dtype=np.int64)
+    WEIGHTS = np.zeros((2, size, 4))
+    row = np.empty(parcels_out.shape[2])
+    hyps = DRY_AIR_GAS_CONSTANT / STANDARD_GRAVITY
+    for c in range(ncol):
+        parcels_out[c] = math.nan
+        thick_out[c] = math.nan
+        level_out[:, c] = math.nan
+        layer_out[:, c] = math.nan
+        n = _compact(
+            c, pressure, temperature, mixing_ratio, height, has_height, surface_pressure,
+            has_surface, surface_t, surface_r, has_surface_air, P, LNP, T, R, Z, IDX,
+        )
+        if n < 2:
+            continue
+        for i in range(n):
+            ln_p = math.log(P[i])
+            ln_t = math.log(T[i])
+            LNP[i] = ln_p
+            TV[i] = virtual_temperature_scalar(T[i], R[i])
+            TH[i] = math.exp(ln_t + KAPPA * (LN_REFERENCE_PRESSURE - ln_p))
+            LTHE[i] = ln_theta_e_from_logs(ln_t, ln_p, R[i], theta_e_table)
+            LTHES[i] = ln_theta_es_scalar(T[i], P[i], label)
+        for i in range(n):
+            j, v0, v1, v2, v3 = pressure_stencil_or_none(LNP[i])
+            LEVEL_STENCIL[i] = j
+            WEIGHTS[0, i, 0] = v0
+            WEIGHTS[0, i, 1] = v1
+            WEIGHTS[0, i, 2] = v2
+            WEIGHTS[0, i, 3] = v3
+            if i < n - 1:
+                j, v0, v1, v2, v3 = pressure_stencil_or_none(0.5 * (LNP[i] + LNP[i + 1]))
+                MID_STENCIL[i] = j
+                WEIGHTS[1, i, 0] = v0
+                WEIGHTS[1, i, 1] = v1
+                WEIGHTS[1, i, 2] = v2
+                WEIGHTS[1, i, 3] = v3
+        MINTH[n - 1] = TH[n - 1]
+        for i in range(n - 2, -1, -1):
+            MINTH[i] = min(TH[i], MINTH[i + 1])
+        # heights above ground
+        ps = surface_pressure[c] if has_surface else math.nan
+        ground_known = has_surface and math.isfinite(ps)
+        if has_height:
+            if IDX[0] == -1:
+                Z[0] = surface_height[c] if has_surface_height else (
+                    Z[1] - hyps * 0.5 * (TV[0] + TV[1]) * (LNP[0] - LNP[1])
+                )
+            if has_surface_height and math.isfinite(surface_height[c]):
+                ground = surface_height[c]
+            elif ground_known:
+                ground = Z[0] - hyps * TV[0] * (math.log(ps) - LNP[0])
+            else:
+                ground = Z[0]
+            for i in range(n):
+                Z[i] -= ground
+        else:
+            Z[0] = hyps * TV[0] * (math.log(ps) - LNP[0]) if ground_known else 0.0
+            for i in range(1, n):
+                Z[i] = Z[i - 1] + hyps * 0.5 * (TV[i - 1] + TV[i]) * (LNP[i - 1] - LNP[i])
+        # per level
+        for i in range(n):
+            k = IDX[i]
+            if k >= 0:
+                level_out[0, c, k] = TH[i]
+                level_out[1, c, k] = math.exp(LTHE[i])
+                level_out[2, c, k] = math.exp(LTHES[i])
+        # per layer
+        for i in range(n - 1):
+            k0 = IDX[i]
+            k1 = IDX[i + 1]
+            if k0 < 0 or k1 < 0 or abs(k0 - k1) != 1:
+                continue
+            values = layer_diagnostics(
+                T[i], TH[i], LTHE[i], LTHES[i], Z[i],
+                T[i + 1], TH[i + 1], LTHE[i + 1], LTHES[i + 1], Z[i + 1],
+                dry_band, moist_band,
+            )
+            slot = min(k0, k1)
+            for f in range(6):
+                layer_out[f, c, slot] = values[f]
+        # thick layers: the lowest low_depth metres, and upper_bottom..upper_top
+        top_z = low_depth
+        if Z[n - 1] >= top_z:
+            j = 0
+            while Z[j + 1] < top_z:
+                j += 1
+            fraction = (top_z - Z[j]) / (Z[j + 1] - Z[j])
+            top_ln_p = LNP[j] + fraction * (LNP[j + 1] - LNP[j])
+            t1, th1, lthe1, lthes1, z1 = _thick_layer_state(
+                top_ln_p, LNP, T, R, Z, n, label, theta_e_table
+            )
+            values = layer_diagnostics(
+                T[0], TH[0], LTHE[0], LTHES[0], Z[0], t1, th1, lthe1, lthes1, top_z,
+                dry_band, moist_band,
+            )
+            for f in range(6):
+                thick_out[c, 0, f] = values[f]
+        if P[0] >= upper_bottom and P[n - 1] <= upper_top:
+            t0, th0, lthe0, lthes0, z0 = _thick_layer_state(
+                math.log(upper_bottom), LNP, T, R, Z, n, label, theta_e_table
+            )
+            t1, th1, lthe1, lthes1, z1 = _thick_layer_state(
+                math.log(upper_top), LNP, T, R, Z, n, label, theta_e_table
+            )
+            values = layer_diagnostics(
+                t0, th0, lthe0, lthes0, z0, t1, th1, lthe1, lthes1, z1, dry_band, moist_band
+            )
+            for f in range(6):
+                thick_out[c, 1, f] = values[f]
+        # parcels
+        bottom = ps if (ground_known and ps > P[0]) else P[0]
+        for which in range(3):
+            if which == 0:
+                p0, t0, r0 = P[0], T[0], R[0]
+            elif which == 1:
+                p0, t0, r0 = mixed_layer_parcel(LNP, P, TH, R, n, bottom, ml_depth)
+            else:
+                level = most_unstable_level(P, LTHE, n, bottom, mu_depth)
+                if level < 0:
+                    continue
+                p0, t0, r0 = P[level], T[level], R[level]
+                if level == 0:
+                    parcels_out[c, 2] = parcels_out[c, 0]
+                    continue
+            lift_parcel(
+                p0, t0, r0, LNP, T, R, TV, Z, MINTH, n, LEVEL_STENCIL, MID_STENCIL, WEIGHTS,
+                reversible, virtual, li_pressure, parcel_table, label, row,
+            )
+            for f in range(row.size):
+                parcels_out[c, which, f] = row[f]
+
+
+def _as_columns(name, array, shape):
+    if array is None:
+        return np.full(shape, np.nan), False
+    values = np.asarray(array, dtype=np.float64)
+    if values.shape != shape:
+        raise ValueError(f"{name} has shape {values.shape}, expected {shape}")
+    return np.ascontiguousarray(values), True
+
+
+def diagnose_columns(
+    pressure,
+    temperature,
+    mixing_ratio,
+    *,
+    height=None,
+    surface_pressure=None,
+    surface_height=None,
+    surface_temperature=None,
+    surface_mixing_ratio=None,
+    options: ColumnOptions = ColumnOptions(),
+) -> dict[str, np.ndarray]:
+    """Every stability diagnostic of every column.
+
+    Parameters
+    ----------
+    pressure : array_like, shape (columns, levels)
+        Air pressure, Pa. Levels may run either way (per column), may be NaN anywhere,
+        and may lie below the surface (they are skipped). A 1-D array of levels is
+        broadcast to every column.
+    temperature : array_like, shape (columns, levels)
+        Air temperature, K.
+    mixing_ratio : array_like, shape (columns, levels)
+        Water-vapour mixing ratio, kg/kg; values below 1e-10 (negative ones too) are
+        raised to 1e-10.
+    height : array_like, shape (columns, levels), optional
+        Geopotential height, m. Without it, heights come from the hypsometric
+        equation with virtual temperature, integrated from the surface (or the lowest
+        valid level).
+    surface_pressure : array_like, shape (columns,), optional
+        Surface pressure, Pa: levels at higher pressure are below ground, heights are
+        measured from it, and the mixed layer starts there.
+    surface_height : array_like, shape (columns,), optional
+        Surface geopotential height, m (only used with ``height``).
+    surface_temperature, surface_mixing_ratio : array_like, shape (columns,), optional
+        Near-surface air temperature (K) and mixing ratio (kg/kg); with
+        ``surface_pressure`` they form the surface-based parcel and the bottom level.
+    options : ColumnOptions
+        Physics settings.
+
+    Returns
+    -------
+    dict of str to ndarray
+        The arrays named in ``OUTPUTS``: per column (columns,), per level
+        (columns, levels) and per layer (columns, levels - 1), layer k lying between
+        input levels k and k+1. Floats have the floating type of the inputs (float32
+        in, float32 out; arithmetic is float64). Classes, flags and the EL-at-top
+        marker are int8 with -1 for missing.
+    """
+    dtype = np.result_type(np.asarray(temperature).dtype, np.float32)
+    if dtype not in (np.float32, np.float64):
+        dtype = np.dtype(np.float64)
+    t = np.ascontiguousarray(np.asarray(temperature, dtype=np.float64))
+    if t.ndim != 2:
+        raise ValueError(f"temperature must have shape (columns, levels), got {t.shape}")
+    ncol, nlev = t.shape
+    p = np.asarray(pressure, dtype=np.float64)
+    if p.ndim == 1:
+        p = np.broadcast_to(p, t.shape)
+    p = np.ascontiguousarray(p)
+    if p.shape != t.shape:
+        raise ValueError(f"pressure has shape {p.shape}, expected {t.shape}")
+    r, _ = _as_columns("mixing_ratio", mixing_ratio, t.shape)
+    z, has_z = _as_columns("height", height, t.shape)
+    ps, has_ps = _as_columns("surface_pressure", surface_pressure, (ncol,))
+    zs, has_zs = _as_columns("surface_height", surface_height, (ncol,))
+    ts, has_ts = _as_columns("surface_temperature", surface_temperature, (ncol,))
+    rs, has_rs = _as_columns("surface_mixing_ratio", surface_mixing_ratio, (ncol,))
+    tables = adiabat_tables()
+    parcels_out = np.empty((ncol, 3, len(PARCEL_FIELDS)))
+    thick_out = np.empty((ncol, 2, len(LAYER_FIELDS)))
+    level_out = np.empty((3, ncol, nlev))
+    layer_out = np.empty((len(LAYER_FIELDS), ncol, max(nlev - 1, 0)))
+    if ncol:
+        _diagnose(
+            p, t, r, z, has_z, ps, has_ps, zs, has_zs, ts, rs, has_ts and has_rs,
+            options.ascent == "reversible", bool(options.virtual_temperature_correction),
+            options.mixed_layer_depth_hpa * 100.0, options.most_unstable_depth_hpa * 100.0,
+            options.dry_neutral_band_k_per_km / 1000.0,
+            options.moist_neutral_band_k_per_km / 1000.0,
+            float(options.low_layer_depth_m), options.upper_layer_bottom_hpa * 100.0,
+            options.upper_layer_top_hpa * 100.0, options.lifted_index_pressure_hpa * 100.0,
+            tables.parcel, tables.label, tables.theta_e,
+            parcels_out, thick_out, level_out, layer_out,
+        )
+    result: dict[str, np.ndarray] = {}
+    for w, parcel in enumerate(PARCEL_NAMES):
+        for f, name in enumerate(PARCEL_FIELDS):
+            result[f"{name}_{PARCEL_SUFFIXES[parcel]}"] = parcels_out[:, w, f]
+    for w, layer in enumerate(THICK_LAYERS):
+        for f, name in enumerate(LAYER_FIELDS):
+            result[f"{name}_{layer}"] = thick_out[:, w, f]
+    for f, name in enumerate(("theta", "theta_e", "theta_es")):
+        result[name] = level_out[f]
+    for f, name in enumerate(LAYER_FIELDS):
+        result[f"layer_{name}"] = layer_out[f]
+    for name, values in result.items():
+        if name in INTEGER_OUTPUTS:
+            result[name] = np.where(np.isfinite(values), values, -1).astype(np.int8)
+        else:
+            result[name] = values.astype(dtype, copy=False)
+    return result

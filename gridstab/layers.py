@@ -1,0 +1,134 @@
+"""Column kernels for layers: lapse rates, theta/theta_e/theta_es gradients and classes.
+
+All functions are compiled, pure and work on one compacted column: arrays ordered
+bottom-up (pressure decreasing), with no missing levels (see ``gridstab.columns``).
+Units: K, Pa, m, K/m.
+
+Classes
+-------
+For a layer between two levels, with T the layer-mean temperature,
+
+* departure from the dry adiabat, Gamma_d' - Gamma = T d(ln theta)/dz, where Gamma_d'
+  = g T/(cpd Tv) is the lapse rate of a layer of constant theta (slightly below g/cpd
+  in moist air, because density depends on virtual temperature);
+* departure from the moist adiabat, Gamma_m' - Gamma = T d(ln theta_es)/dz / A, with
+  A = d(ln theta_es)/d(ln T) at constant p, approximated by 1 + X (Lv/(Rv T) - 1),
+  X = ln(theta_es/theta) (from theta_es ~ theta exp(Lv r_s/(cpd T))).
+
+With neutral bands b_d and b_m (K/m):
+
+====  =======================  ==========================================
+code  class                    condition
+====  =======================  ==========================================
+4     absolutely unstable      Gamma - Gamma_d' > b_d
+3     dry neutral              |Gamma - Gamma_d'| <= b_d
+2     conditionally unstable   Gamma_m' + b_m < Gamma < Gamma_d' - b_d
+1     moist neutral            |Gamma - Gamma_m'| <= b_m
+0     absolutely stable        Gamma < Gamma_m' - b_m
+-1    missing                  any input missing, or theta_es undefined
+====  =======================  ==========================================
+
+The differences are taken between the layer's end values, so for a thick layer the
+class says whether its top is warmer or colder than a dry or saturated parcel lifted
+from its bottom. Potential (convective) instability is d(theta_e)/dz < 0.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numba
+
+from gridstab.constants import WATER_VAPOUR_GAS_CONSTANT
+from gridstab.thermo import latent_heat_vaporisation_scalar
+
+ABSOLUTELY_STABLE = 0
+MOIST_NEUTRAL = 1
+CONDITIONALLY_UNSTABLE = 2
+DRY_NEUTRAL = 3
+ABSOLUTELY_UNSTABLE = 4
+MISSING_CLASS = -1
+CLASS_MEANINGS = (
+    "absolutely_stable",
+    "moist_neutral",
+    "conditionally_unstable",
+    "dry_neutral",
+    "absolutely_unstable",
+)
+
+LAYER_FIELDS = (
+    "lapse_rate",
+    "dtheta_dz",
+    "dthetae_dz",
+    "dthetaes_dz",
+    "stability_class",
+    "potential_instability",
+)
+"""What :func:`layer_diagnostics` returns, in order."""
+
+
+@numba.njit(cache=True, nogil=True)
+def classify(dry_departure, moist_departure, dry_band, moist_band):
+    """Stability class code from the departures (K/m) from the dry and moist adiabats."""
+    if not math.isfinite(dry_departure):
+        return MISSING_CLASS
+    if dry_departure < -dry_band:
+        return ABSOLUTELY_UNSTABLE
+    if dry_departure <= dry_band:
+        return DRY_NEUTRAL
+    if not math.isfinite(moist_departure):
+        return MISSING_CLASS
+    if moist_departure < -moist_band:
+        return CONDITIONALLY_UNSTABLE
+    if moist_departure <= moist_band:
+        return MOIST_NEUTRAL
+    return ABSOLUTELY_STABLE
+
+
+@numba.njit(cache=True, nogil=True)
+def layer_diagnostics(
+    t_bottom, theta_bottom, ln_theta_e_bottom, ln_theta_es_bottom, z_bottom,
+    t_top, theta_top, ln_theta_e_top, ln_theta_es_top, z_top,
+    dry_band, moist_band,
+):
+    """Gradients and class of the layer between two levels.
+
+    Parameters
+    ----------
+    t_*, theta_* : float
+        Temperature and potential temperature at the layer's bottom and top, K.
+    ln_theta_e_*, ln_theta_es_* : float
+        Natural logarithms of theta_e and theta_es (K) there.
+    z_* : float
+        Heights, m.
+    dry_band, moist_band : float
+        Half-widths of the dry- and moist-neutral bands, K/m.
+
+    Returns
+    -------
+    tuple of 6 floats
+        Lapse rate -dT/dz (K/m), d(theta)/dz, d(theta_e)/dz, d(theta_es)/dz (K/m),
+        class code (see the module docstring) and potential-instability flag
+        (1 where d(theta_e)/dz < 0, 0 otherwise, -1 missing), as floats.
+    """
+    dz = z_top - z_bottom
+    if not dz > 0.0:
+        return math.nan, math.nan, math.nan, math.nan, -1.0, -1.0
+    lapse_rate = -(t_top - t_bottom) / dz
+    dtheta = (theta_top - theta_bottom) / dz
+    dthetae = (math.exp(ln_theta_e_top) - math.exp(ln_theta_e_bottom)) / dz
+    dthetaes = (math.exp(ln_theta_es_top) - math.exp(ln_theta_es_bottom)) / dz
+    t_mean = 0.5 * (t_bottom + t_top)
+    ln_theta_bottom = math.log(theta_bottom)
+    ln_theta_top = math.log(theta_top)
+    dry_departure = t_mean * (ln_theta_top - ln_theta_bottom) / dz
+    excess = 0.5 * (ln_theta_es_bottom - ln_theta_bottom + ln_theta_es_top - ln_theta_top)
+    lv = latent_heat_vaporisation_scalar(t_mean)
+    sensitivity = 1.0 + excess * (lv / (WATER_VAPOUR_GAS_CONSTANT * t_mean) - 1.0)
+    moist_departure = t_mean * (ln_theta_es_top - ln_theta_es_bottom) / dz / sensitivity
+    code = classify(dry_departure, moist_departure, dry_band, moist_band)
+    if math.isfinite(dthetae):
+        instability = 1.0 if dthetae < 0.0 else 0.0
+    else:
+        instability = -1.0
+    return lapse_rate, dtheta, dthetae, dthetaes, float(code), instability
