@@ -367,9 +367,14 @@ def ln_theta_e_from_logs(ln_t, ln_p, mixing_ratio, theta_e_table):
     """
     if not mixing_ratio > 0.0:
         return ln_t + KAPPA * (LN_REFERENCE_PRESSURE - ln_p)
+    return ln_theta_e_from_all_logs(ln_t, ln_p, mixing_ratio, math.log(mixing_ratio), theta_e_table)
+
+
+@numba.njit(cache=True, nogil=True)
+def ln_theta_e_from_all_logs(ln_t, ln_p, mixing_ratio, ln_r, theta_e_table):
+    """As :func:`ln_theta_e_from_logs`, with ln(r) given too (r > 0)."""
     kappa = moist_kappa_scalar(mixing_ratio)
     ln_theta_m = ln_t + kappa * (LN_REFERENCE_PRESSURE - ln_p)
-    ln_r = math.log(mixing_ratio)
     if ln_r < LN_R_FIRST + LN_R_STEP:
         e_hpa = 0.01 * math.exp(ln_p) * mixing_ratio / (EPSILON + mixing_ratio)
         t_lcl = 2840.0 / (3.5 * ln_t - math.log(e_hpa) - 4.805) + 55.0

@@ -20,11 +20,11 @@ import numpy as np
 from gridstab.adiabats import (
     LN_REFERENCE_PRESSURE,
     adiabat_tables,
+    ln_theta_e_from_all_logs,
     ln_theta_e_from_logs,
-    ln_theta_e_scalar,
     ln_theta_es_scalar,
 )
-from gridstab.constants import DRY_AIR_GAS_CONSTANT, KAPPA, STANDARD_GRAVITY
+from gridstab.constants import DRY_AIR_GAS_CONSTANT, EPSILON, KAPPA, STANDARD_GRAVITY
 from gridstab.layers import LAYER_FIELDS, layer_diagnostics
 from gridstab.parcels import (
     PARCEL_FIELDS,
@@ -35,7 +35,7 @@ from gridstab.parcels import (
     most_unstable_level,
 )
 from gridstab.profile import bracket, linear
-from gridstab.thermo import potential_temperature_scalar, virtual_temperature_scalar
+from gridstab.thermo import virtual_temperature_scalar
 
 MIXING_RATIO_FLOOR = 1e-10
 """Mixing ratios below this (kg/kg), negative ones included, are raised to it."""
@@ -136,16 +136,16 @@ INTEGER_OUTPUTS = {
 
 @numba.njit(cache=True, nogil=True)
 def _compact(
-    c, pressure, temperature, mixing_ratio, height, has_height, surface_pressure, has_surface,
-    surface_t, surface_r, has_surface_air,
-    P, LNP, T, R, Z, IDX,
+    c, pressure, ln_p_all, temperature, ln_t_all, mixing_ratio, ln_r_all, theta_all, tv_all,
+    height, has_height, surface_pressure, has_surface, surface_t, surface_r, has_surface_air,
+    P, LNP, T, LNT, R, LNR, TH, TV, Z, IDX,
 ):
     """Copy column c's valid levels bottom-up into the work arrays; return their count."""
     nlev = pressure.shape[1]
     first = -1
     last = -1
     for k in range(nlev):
-        if math.isfinite(pressure[c, k]) and pressure[c, k] > 0.0:
+        if pressure[c, k] > 0.0:
             if first < 0:
                 first = k
             last = k
@@ -153,21 +153,27 @@ def _compact(
         return 0
     top_down = pressure[c, first] < pressure[c, last]
     ps = surface_pressure[c] if has_surface else math.inf
+    if not ps > 0.0:
+        ps = math.inf
     count = 0
     if has_surface and has_surface_air:
-        if math.isfinite(ps) and math.isfinite(surface_t[c]) and math.isfinite(surface_r[c]):
+        if math.isfinite(ps) and surface_t[c] > 0.0 and math.isfinite(surface_r[c]):
+            r = max(surface_r[c], MIXING_RATIO_FLOOR)
             P[0] = ps
+            LNP[0] = math.log(ps)
             T[0] = surface_t[c]
-            R[0] = max(surface_r[c], MIXING_RATIO_FLOOR)
+            LNT[0] = math.log(surface_t[c])
+            R[0] = r
+            LNR[0] = math.log(r)
+            TH[0] = math.exp(LNT[0] + KAPPA * (LN_REFERENCE_PRESSURE - LNP[0]))
+            TV[0] = virtual_temperature_scalar(T[0], r)
             Z[0] = math.nan
             IDX[0] = -1
             count = 1
     for step in range(nlev):
         k = nlev - 1 - step if top_down else step
         p = pressure[c, k]
-        t = temperature[c, k]
-        r = mixing_ratio[c, k]
-        if not (math.isfinite(p) and math.isfinite(t) and math.isfinite(r) and p > 0.0):
+        if not (p > 0.0 and temperature[c, k] > 0.0 and math.isfinite(mixing_ratio[c, k])):
             continue
         if has_height and not math.isfinite(height[c, k]):
             continue
@@ -175,13 +181,17 @@ def _compact(
             continue  # below ground
         if count > 0 and p >= P[count - 1]:
             if IDX[count - 1] == -1 and p > P[count - 1] - 1.0:
-                # a level at the surface replaces the surface values
-                count -= 1
+                count -= 1  # a level at the surface replaces the surface values
             else:
                 continue  # not above the previous level
         P[count] = p
-        T[count] = t
-        R[count] = max(r, MIXING_RATIO_FLOOR)
+        LNP[count] = ln_p_all[c, k]
+        T[count] = temperature[c, k]
+        LNT[count] = ln_t_all[c, k]
+        R[count] = mixing_ratio[c, k]
+        LNR[count] = ln_r_all[c, k]
+        TH[count] = theta_all[c, k]
+        TV[count] = tv_all[c, k]
         Z[count] = height[c, k] if has_height else math.nan
         IDX[count] = k
         count += 1
@@ -189,47 +199,51 @@ def _compact(
 
 
 @numba.njit(cache=True, nogil=True)
-def _thick_layer_state(target_ln_p, LNP, T, R, Z, count, label, theta_e_table):
-    """(T, theta, ln theta_e, ln theta_es, z) at ln p inside the column; NaN outside."""
+def _state_at(target_ln_p, LNP, T, R, Z, count, label, theta_e_table):
+    """(T, ln theta, theta_e, theta_es, z) at ln p inside the column; NaN outside."""
     k = bracket(LNP, count, target_ln_p)
     if k < 0:
         return math.nan, math.nan, math.nan, math.nan, math.nan
     if k == count - 1:
         k = count - 2
-    p = math.exp(target_ln_p)
     t = linear(LNP, T, k, target_ln_p)
     r = linear(LNP, R, k, target_ln_p)
     z = linear(LNP, Z, k, target_ln_p)
+    ln_t = math.log(t)
     return (
         t,
-        potential_temperature_scalar(t, p),
-        ln_theta_e_scalar(t, p, r, theta_e_table),
-        ln_theta_es_scalar(t, p, label),
+        ln_t + KAPPA * (LN_REFERENCE_PRESSURE - target_ln_p),
+        math.exp(ln_theta_e_from_logs(ln_t, target_ln_p, r, theta_e_table)),
+        math.exp(ln_theta_es_scalar(t, math.exp(target_ln_p), label)),
         z,
     )
 
 
 @numba.njit(cache=True, nogil=True)
 def _diagnose(
-    pressure, temperature, mixing_ratio, height, has_height,
-    surface_pressure, has_surface, surface_height, has_surface_height,
+    pressure, ln_p_all, temperature, ln_t_all, mixing_ratio, ln_r_all, theta_all, tv_all,
+    height, has_height, surface_pressure, has_surface, surface_height, has_surface_height,
     surface_t, surface_r, has_surface_air,
     reversible, virtual, ml_depth, mu_depth, dry_band, moist_band,
-    low_depth, upper_bottom, upper_top, li_pressure,
+    low_depth, upper_bottom, upper_top, li_pressure, want_levels,
     parcel_table, label, theta_e_table,
-    parcels_out, thick_out, level_out, layer_out,
+    parcels_out, thick_out, level_out, layer_out, layer_flags,
 ):
     ncol, nlev = pressure.shape
     size = nlev + 1
     P = np.empty(size)
     LNP = np.empty(size)
     T = np.empty(size)
+    LNT = np.empty(size)
     R = np.empty(size)
+    LNR = np.empty(size)
     TV = np.empty(size)
     Z = np.empty(size)
     TH = np.empty(size)
+    LTH = np.empty(size)
     LTHE = np.empty(size)
-    LTHES = np.empty(size)
+    THE = np.empty(size)
+    THES = np.empty(size)
     MINTH = np.empty(size)
     IDX = np.empty(size, dtype=np.int64)
     LEVEL_STENCIL = np.empty(size, dtype=np.int64)
@@ -238,24 +252,18 @@ def _diagnose(
     row = np.empty(parcels_out.shape[2])
     hyps = DRY_AIR_GAS_CONSTANT / STANDARD_GRAVITY
     for c in range(ncol):
-        parcels_out[c] = math.nan
-        thick_out[c] = math.nan
-        level_out[:, c] = math.nan
-        layer_out[:, c] = math.nan
         n = _compact(
-            c, pressure, temperature, mixing_ratio, height, has_height, surface_pressure,
-            has_surface, surface_t, surface_r, has_surface_air, P, LNP, T, R, Z, IDX,
+            c, pressure, ln_p_all, temperature, ln_t_all, mixing_ratio, ln_r_all, theta_all,
+            tv_all, height, has_height, surface_pressure, has_surface, surface_t, surface_r,
+            has_surface_air, P, LNP, T, LNT, R, LNR, TH, TV, Z, IDX,
         )
         if n < 2:
             continue
         for i in range(n):
-            ln_p = math.log(P[i])
-            ln_t = math.log(T[i])
-            LNP[i] = ln_p
-            TV[i] = virtual_temperature_scalar(T[i], R[i])
-            TH[i] = math.exp(ln_t + KAPPA * (LN_REFERENCE_PRESSURE - ln_p))
-            LTHE[i] = ln_theta_e_from_logs(ln_t, ln_p, R[i], theta_e_table)
-            LTHES[i] = ln_theta_es_scalar(T[i], P[i], label)
+            LTH[i] = LNT[i] + KAPPA * (LN_REFERENCE_PRESSURE - LNP[i])
+            LTHE[i] = ln_theta_e_from_all_logs(LNT[i], LNP[i], R[i], LNR[i], theta_e_table)
+            THE[i] = math.exp(LTHE[i])
+            THES[i] = math.exp(ln_theta_es_scalar(T[i], P[i], label))
         for i in range(n):
             j, v0, v1, v2, v3 = pressure_stencil_or_none(LNP[i])
             LEVEL_STENCIL[i] = j
@@ -275,7 +283,7 @@ def _diagnose(
             MINTH[i] = min(TH[i], MINTH[i + 1])
         # heights above ground
         ps = surface_pressure[c] if has_surface else math.nan
-        ground_known = has_surface and math.isfinite(ps)
+        ground_known = has_surface and ps > 0.0
         if has_height:
             if IDX[0] == -1:
                 Z[0] = surface_height[c] if has_surface_height else (
@@ -293,53 +301,51 @@ def _diagnose(
             Z[0] = hyps * TV[0] * (math.log(ps) - LNP[0]) if ground_known else 0.0
             for i in range(1, n):
                 Z[i] = Z[i - 1] + hyps * 0.5 * (TV[i - 1] + TV[i]) * (LNP[i - 1] - LNP[i])
-        # per level
-        for i in range(n):
-            k = IDX[i]
-            if k >= 0:
-                level_out[0, c, k] = TH[i]
-                level_out[1, c, k] = math.exp(LTHE[i])
-                level_out[2, c, k] = math.exp(LTHES[i])
-        # per layer
-        for i in range(n - 1):
-            k0 = IDX[i]
-            k1 = IDX[i + 1]
-            if k0 < 0 or k1 < 0 or abs(k0 - k1) != 1:
-                continue
-            values = layer_diagnostics(
-                T[i], TH[i], LTHE[i], LTHES[i], Z[i],
-                T[i + 1], TH[i + 1], LTHE[i + 1], LTHES[i + 1], Z[i + 1],
-                dry_band, moist_band,
-            )
-            slot = min(k0, k1)
-            for f in range(6):
-                layer_out[f, c, slot] = values[f]
+        if want_levels:
+            for i in range(n):
+                k = IDX[i]
+                if k >= 0:
+                    level_out[0, c, k] = TH[i]
+                    level_out[1, c, k] = THE[i]
+                    level_out[2, c, k] = THES[i]
+            for i in range(n - 1):
+                k0 = IDX[i]
+                k1 = IDX[i + 1]
+                if k0 < 0 or k1 < 0 or abs(k0 - k1) != 1:
+                    continue
+                values = layer_diagnostics(
+                    T[i], LTH[i], THE[i], THES[i], Z[i],
+                    T[i + 1], LTH[i + 1], THE[i + 1], THES[i + 1], Z[i + 1],
+                    dry_band, moist_band,
+                )
+                slot = min(k0, k1)
+                for f in range(4):
+                    layer_out[f, c, slot] = values[f]
+                layer_flags[0, c, slot] = int(values[4])
+                layer_flags[1, c, slot] = int(values[5])
         # thick layers: the lowest low_depth metres, and upper_bottom..upper_top
-        top_z = low_depth
-        if Z[n - 1] >= top_z:
+        if Z[n - 1] >= low_depth:
             j = 0
-            while Z[j + 1] < top_z:
+            while Z[j + 1] < low_depth:
                 j += 1
-            fraction = (top_z - Z[j]) / (Z[j + 1] - Z[j])
+            fraction = (low_depth - Z[j]) / (Z[j + 1] - Z[j])
             top_ln_p = LNP[j] + fraction * (LNP[j + 1] - LNP[j])
-            t1, th1, lthe1, lthes1, z1 = _thick_layer_state(
-                top_ln_p, LNP, T, R, Z, n, label, theta_e_table
-            )
+            t1, lth1, the1, thes1, z1 = _state_at(top_ln_p, LNP, T, R, Z, n, label, theta_e_table)
             values = layer_diagnostics(
-                T[0], TH[0], LTHE[0], LTHES[0], Z[0], t1, th1, lthe1, lthes1, top_z,
+                T[0], LTH[0], THE[0], THES[0], Z[0], t1, lth1, the1, thes1, low_depth,
                 dry_band, moist_band,
             )
             for f in range(6):
                 thick_out[c, 0, f] = values[f]
         if P[0] >= upper_bottom and P[n - 1] <= upper_top:
-            t0, th0, lthe0, lthes0, z0 = _thick_layer_state(
+            t0, lth0, the0, thes0, z0 = _state_at(
                 math.log(upper_bottom), LNP, T, R, Z, n, label, theta_e_table
             )
-            t1, th1, lthe1, lthes1, z1 = _thick_layer_state(
+            t1, lth1, the1, thes1, z1 = _state_at(
                 math.log(upper_top), LNP, T, R, Z, n, label, theta_e_table
             )
             values = layer_diagnostics(
-                t0, th0, lthe0, lthes0, z0, t1, th1, lthe1, lthes1, z1, dry_band, moist_band
+                t0, lth0, the0, thes0, z0, t1, lth1, the1, thes1, z1, dry_band, moist_band
             )
             for f in range(6):
                 thick_out[c, 1, f] = values[f]
@@ -356,7 +362,8 @@ def _diagnose(
                     continue
                 p0, t0, r0 = P[level], T[level], R[level]
                 if level == 0:
-                    parcels_out[c, 2] = parcels_out[c, 0]
+                    for f in range(row.size):
+                        parcels_out[c, 2, f] = parcels_out[c, 0, f]
                     continue
             lift_parcel(
                 p0, t0, r0, LNP, T, R, TV, Z, MINTH, n, LEVEL_STENCIL, MID_STENCIL, WEIGHTS,
@@ -386,6 +393,7 @@ def diagnose_columns(
     surface_temperature=None,
     surface_mixing_ratio=None,
     options: ColumnOptions = ColumnOptions(),
+    per_level: bool = True,
 ) -> dict[str, np.ndarray]:
     """Every stability diagnostic of every column.
 
@@ -414,6 +422,9 @@ def diagnose_columns(
         ``surface_pressure`` they form the surface-based parcel and the bottom level.
     options : ColumnOptions
         Physics settings.
+    per_level : bool
+        Also return the per-level and per-layer outputs (default); without them only
+        the per-column outputs are returned, and less is computed.
 
     Returns
     -------
@@ -444,21 +455,35 @@ def diagnose_columns(
     ts, has_ts = _as_columns("surface_temperature", surface_temperature, (ncol,))
     rs, has_rs = _as_columns("surface_mixing_ratio", surface_mixing_ratio, (ncol,))
     tables = adiabat_tables()
-    parcels_out = np.empty((ncol, 3, len(PARCEL_FIELDS)))
-    thick_out = np.empty((ncol, 2, len(LAYER_FIELDS)))
-    level_out = np.empty((3, ncol, nlev))
-    layer_out = np.empty((len(LAYER_FIELDS), ncol, max(nlev - 1, 0)))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        valid_p = np.where(p > 0, p, np.nan)
+        ln_p = np.log(valid_p)
+        ln_t = np.log(np.where(t > 0, t, np.nan))
+        r_floor = np.maximum(r, MIXING_RATIO_FLOOR)
+        r_floor = np.where(np.isnan(r), np.nan, r_floor)
+        ln_r = np.log(r_floor)
+        theta = np.exp(ln_t + KAPPA * (LN_REFERENCE_PRESSURE - ln_p))
+        tv = t * (1.0 + r_floor / EPSILON) / (1.0 + r_floor)
+    parcels_out = np.full((ncol, 3, len(PARCEL_FIELDS)), np.nan)
+    thick_out = np.full((ncol, 2, len(LAYER_FIELDS)), np.nan)
+    want_levels = bool(per_level)
+    level_shape = (3, ncol, nlev) if want_levels else (3, 0, 0)
+    layer_shape = (4, ncol, max(nlev - 1, 0)) if want_levels else (4, 0, 0)
+    level_out = np.full(level_shape, np.nan, dtype=dtype)
+    layer_out = np.full(layer_shape, np.nan, dtype=dtype)
+    layer_flags = np.full((2,) + layer_shape[1:], -1, dtype=np.int8)
     if ncol:
         _diagnose(
-            p, t, r, z, has_z, ps, has_ps, zs, has_zs, ts, rs, has_ts and has_rs,
+            p, ln_p, t, ln_t, r_floor, ln_r, theta, tv, z, has_z, ps, has_ps, zs, has_zs,
+            ts, rs, has_ts and has_rs,
             options.ascent == "reversible", bool(options.virtual_temperature_correction),
             options.mixed_layer_depth_hpa * 100.0, options.most_unstable_depth_hpa * 100.0,
             options.dry_neutral_band_k_per_km / 1000.0,
             options.moist_neutral_band_k_per_km / 1000.0,
             float(options.low_layer_depth_m), options.upper_layer_bottom_hpa * 100.0,
             options.upper_layer_top_hpa * 100.0, options.lifted_index_pressure_hpa * 100.0,
-            tables.parcel, tables.label, tables.theta_e,
-            parcels_out, thick_out, level_out, layer_out,
+            want_levels, tables.parcel, tables.label, tables.theta_e,
+            parcels_out, thick_out, level_out, layer_out, layer_flags,
         )
     result: dict[str, np.ndarray] = {}
     for w, parcel in enumerate(PARCEL_NAMES):
@@ -467,13 +492,16 @@ def diagnose_columns(
     for w, layer in enumerate(THICK_LAYERS):
         for f, name in enumerate(LAYER_FIELDS):
             result[f"{name}_{layer}"] = thick_out[:, w, f]
-    for f, name in enumerate(("theta", "theta_e", "theta_es")):
-        result[name] = level_out[f]
-    for f, name in enumerate(LAYER_FIELDS):
-        result[f"layer_{name}"] = layer_out[f]
     for name, values in result.items():
         if name in INTEGER_OUTPUTS:
             result[name] = np.where(np.isfinite(values), values, -1).astype(np.int8)
         else:
             result[name] = values.astype(dtype, copy=False)
+    if want_levels:
+        for f, name in enumerate(("theta", "theta_e", "theta_es")):
+            result[name] = level_out[f]
+        for f, name in enumerate(LAYER_FIELDS[:4]):
+            result[f"layer_{name}"] = layer_out[f]
+        result["layer_stability_class"] = layer_flags[0]
+        result["layer_potential_instability"] = layer_flags[1]
     return result

@@ -13,7 +13,8 @@ For a layer between two levels, with T the layer-mean temperature,
   in moist air, because density depends on virtual temperature);
 * departure from the moist adiabat, Gamma_m' - Gamma = T d(ln theta_es)/dz / A, with
   A = d(ln theta_es)/d(ln T) at constant p, approximated by 1 + X (Lv/(Rv T) - 1),
-  X = ln(theta_es/theta) (from theta_es ~ theta exp(Lv r_s/(cpd T))).
+  X = theta_es/theta - 1 ~ Lv r_s/(cpd T) (from theta_es ~ theta exp(Lv r_s/(cpd T))),
+  and d(ln theta_es) by d(theta_es)/theta_es with the layer-mean theta_es.
 
 With neutral bands b_d and b_m (K/m):
 
@@ -87,18 +88,20 @@ def classify(dry_departure, moist_departure, dry_band, moist_band):
 
 @numba.njit(cache=True, nogil=True)
 def layer_diagnostics(
-    t_bottom, theta_bottom, ln_theta_e_bottom, ln_theta_es_bottom, z_bottom,
-    t_top, theta_top, ln_theta_e_top, ln_theta_es_top, z_top,
+    t_bottom, ln_theta_bottom, theta_e_bottom, theta_es_bottom, z_bottom,
+    t_top, ln_theta_top, theta_e_top, theta_es_top, z_top,
     dry_band, moist_band,
 ):
     """Gradients and class of the layer between two levels.
 
     Parameters
     ----------
-    t_*, theta_* : float
-        Temperature and potential temperature at the layer's bottom and top, K.
-    ln_theta_e_*, ln_theta_es_* : float
-        Natural logarithms of theta_e and theta_es (K) there.
+    t_* : float
+        Temperature at the layer's bottom and top, K.
+    ln_theta_* : float
+        ln(theta / K) there.
+    theta_e_*, theta_es_* : float
+        theta_e and theta_es there, K (NaN where undefined).
     z_* : float
         Heights, m.
     dry_band, moist_band : float
@@ -115,17 +118,18 @@ def layer_diagnostics(
     if not dz > 0.0:
         return math.nan, math.nan, math.nan, math.nan, -1.0, -1.0
     lapse_rate = -(t_top - t_bottom) / dz
-    dtheta = (theta_top - theta_bottom) / dz
-    dthetae = (math.exp(ln_theta_e_top) - math.exp(ln_theta_e_bottom)) / dz
-    dthetaes = (math.exp(ln_theta_es_top) - math.exp(ln_theta_es_bottom)) / dz
+    dtheta = (math.exp(ln_theta_top) - math.exp(ln_theta_bottom)) / dz
+    dthetae = (theta_e_top - theta_e_bottom) / dz
+    dthetaes = (theta_es_top - theta_es_bottom) / dz
     t_mean = 0.5 * (t_bottom + t_top)
-    ln_theta_bottom = math.log(theta_bottom)
-    ln_theta_top = math.log(theta_top)
     dry_departure = t_mean * (ln_theta_top - ln_theta_bottom) / dz
-    excess = 0.5 * (ln_theta_es_bottom - ln_theta_bottom + ln_theta_es_top - ln_theta_top)
+    # ln(theta_es/theta) ~ Lv r_s/(cpd T), and theta_es ~ theta_es_bottom + dthetaes dz
+    theta_es_mean = 0.5 * (theta_es_bottom + theta_es_top)
+    theta_mean = math.exp(0.5 * (ln_theta_bottom + ln_theta_top))
+    excess = theta_es_mean / theta_mean - 1.0
     lv = latent_heat_vaporisation_scalar(t_mean)
     sensitivity = 1.0 + excess * (lv / (WATER_VAPOUR_GAS_CONSTANT * t_mean) - 1.0)
-    moist_departure = t_mean * (ln_theta_es_top - ln_theta_es_bottom) / dz / sensitivity
+    moist_departure = t_mean * dthetaes / theta_es_mean / sensitivity
     code = classify(dry_departure, moist_departure, dry_band, moist_band)
     if math.isfinite(dthetae):
         instability = 1.0 if dthetae < 0.0 else 0.0
