@@ -1,0 +1,128 @@
+"""The grid engine: laziness, chunking independence, equality with the column kernels."""
+
+from __future__ import annotations
+
+import dask
+import dask.array as dsa
+import numpy as np
+import pytest
+import xarray as xr
+
+from gridstab.columns import ColumnOptions, diagnose_columns
+from gridstab.engine import EngineSettings, choose_chunks, diagnose, output_metadata
+from gridstab.errors import InputError
+from gridstab.reading import open_model_output
+from soundings import STANDARD_LEVELS, layered_sounding
+
+
+def synthetic(nt=2, ny=4, nx=5, seed=0):
+    rng = np.random.default_rng(seed)
+    p = STANDARD_LEVELS
+    t = np.empty((nt, p.size, ny, nx))
+    r = np.empty_like(t)
+    for index in np.ndindex(nt, ny, nx):
+        _, tt, rr = layered_sounding(rng)
+        t[index[0], :, index[1], index[2]] = tt
+        r[index[0], :, index[1], index[2]] = rr
+    dims = ("time", "plev", "lat", "lon")
+    return xr.Dataset(
+        {
+            "air_temperature": (dims, t),
+            "humidity_mixing_ratio": (dims, r),
+            "air_pressure": (("plev",), p),
+        },
+        coords={"time": np.arange(nt), "plev": p, "lat": np.linspace(40, 43, ny),
+                "lon": np.linspace(5, 9, nx)},
+        attrs={"gridstab_level_dim": "plev"},
+    )
+
+
+@pytest.fixture(params=["eager", "chunked"])
+def dataset(request):
+    ds = synthetic()
+    if request.param == "chunked":
+        ds = ds.chunk({"time": 1, "lat": 2, "lon": 3})
+    return ds
+
+
+def test_results_equal_the_column_kernels(dataset):
+    out = diagnose(dataset, settings=EngineSettings(per_level_fields=True)).compute()
+    t = dataset["air_temperature"].transpose("time", "lat", "lon", "plev").values.reshape(-1, 37)
+    r = dataset["humidity_mixing_ratio"].transpose("time", "lat", "lon", "plev").values.reshape(-1, 37)
+    ref = diagnose_columns(STANDARD_LEVELS, t, r)
+    for name in ("cape_sb", "cin_ml", "lcl_height_mu", "lifted_index_sb", "dthetaes_dz_850_500"):
+        np.testing.assert_array_equal(out[name].values.ravel(), ref[name])
+    np.testing.assert_array_equal(out["stability_class_low3km"].values.ravel(),
+                                  ref["stability_class_low3km"])
+    theta = out["theta"].transpose("time", "lat", "lon", "plev").values.reshape(-1, 37)
+    np.testing.assert_array_equal(theta, ref["theta"])
+    assert out["theta"].dims == ("time", "plev", "lat", "lon")
+    assert out["layer_stability_class"].dims == ("time", "layer", "lat", "lon")
+
+
+def test_results_do_not_depend_on_chunking():
+    ds = synthetic(seed=1)
+    a = diagnose(ds.chunk({"time": 1, "lat": 1, "lon": 1})).compute()
+    b = diagnose(ds, settings=EngineSettings(memory_budget_mib=8)).compute()
+    for name in a.data_vars:
+        np.testing.assert_array_equal(a[name].values, b[name].values)
+
+
+def test_engine_is_lazy():
+    calls = []
+    ds = synthetic()
+
+    def spy(block):
+        if block.size:  # dask may call it on empty arrays to learn the output type
+            calls.append(1)
+        return block
+
+    temperature = dsa.from_array(ds["air_temperature"].values, chunks=(1, -1, 2, 5))
+    ds["air_temperature"] = (ds["air_temperature"].dims, temperature.map_blocks(spy, meta=np.array((), dtype=float)))
+    out = diagnose(ds)
+    assert calls == []
+    assert isinstance(out["cape_sb"].data, dsa.Array)
+    out["cape_sb"].compute()
+    assert calls
+
+
+def test_chunks_respect_the_memory_budget():
+    template = xr.DataArray(np.zeros((10, 37, 181, 360), dtype=np.float32),
+                            dims=("time", "plev", "lat", "lon"))
+    chunks = choose_chunks(template, "plev", 64)
+    assert chunks["plev"] == -1
+    columns = chunks["time"] * chunks["lat"] * chunks["lon"]
+    assert columns * 37 * 320 <= 64 * 2**20
+    assert chunks["lon"] == 360
+
+
+def test_metadata_and_provenance(dataset):
+    out = diagnose(dataset, options=ColumnOptions(ascent="reversible"))
+    assert out["cape_ml"].attrs["standard_name"] == "atmosphere_convective_available_potential_energy"
+    assert out["cape_ml"].attrs["parcel"] == "mixed_layer"
+    assert out["stability_class_850_500"].attrs["flag_meanings"].split()[2] == "conditionally_unstable"
+    assert out.attrs["gridstab_physics_ascent"] == "reversible"
+    assert "lat" in out.coords and "time" in out.coords
+    for name in out.data_vars:
+        assert output_metadata(name)["long_name"]
+
+
+def test_single_level_is_refused():
+    ds = synthetic().isel(plev=[0])
+    with pytest.raises(InputError, match="at least two"):
+        diagnose(ds)
+
+
+def test_real_hybrid_file_end_to_end(real_data_dir):
+    # IFS hybrid levels, packed int16, surface pressure: a real summer case over land
+    ds = open_model_output(real_data_dir / "ifs_hybrid_l49_packed.nc")
+    out = diagnose(ds).compute()
+    assert out["cape_sb"].dims == ds["surface_air_pressure"].dims or out["cape_sb"].ndim == 3
+    cape = out["cape_mu"].values
+    assert np.all(np.isfinite(cape)) and np.all(cape >= 0)
+    lcl = out["lcl_height_sb"].values
+    assert np.all((lcl > 0) & (lcl < 6000))
+    # the heights above ground start at the surface given by the file
+    with dask.config.set(scheduler="synchronous"):
+        single = diagnose(ds.isel(time=[0], latitude=[0], longitude=[0])).compute()
+    np.testing.assert_allclose(single["cape_mu"].values.ravel(), cape[0, 0, 0], rtol=1e-6)
