@@ -200,19 +200,21 @@ def _compact(
 
 @numba.njit(cache=True, nogil=True)
 def _state_at(target_ln_p, LNP, T, R, Z, count, label, theta_e_table):
-    """(T, ln theta, theta_e, theta_es, z) at ln p inside the column; NaN outside."""
+    """(T, theta, ln theta, theta_e, theta_es, z) at ln p inside the column; NaN outside."""
     k = bracket(LNP, count, target_ln_p)
     if k < 0:
-        return math.nan, math.nan, math.nan, math.nan, math.nan
+        return math.nan, math.nan, math.nan, math.nan, math.nan, math.nan
     if k == count - 1:
         k = count - 2
     t = linear(LNP, T, k, target_ln_p)
     r = linear(LNP, R, k, target_ln_p)
     z = linear(LNP, Z, k, target_ln_p)
     ln_t = math.log(t)
+    ln_theta = ln_t + KAPPA * (LN_REFERENCE_PRESSURE - target_ln_p)
     return (
         t,
-        ln_t + KAPPA * (LN_REFERENCE_PRESSURE - target_ln_p),
+        math.exp(ln_theta),
+        ln_theta,
         math.exp(ln_theta_e_from_logs(ln_t, target_ln_p, r, theta_e_table)),
         math.exp(ln_theta_es_scalar(t, math.exp(target_ln_p), label)),
         z,
@@ -314,8 +316,8 @@ def _diagnose(
                 if k0 < 0 or k1 < 0 or abs(k0 - k1) != 1:
                     continue
                 values = layer_diagnostics(
-                    T[i], LTH[i], THE[i], THES[i], Z[i],
-                    T[i + 1], LTH[i + 1], THE[i + 1], THES[i + 1], Z[i + 1],
+                    T[i], TH[i], LTH[i], THE[i], THES[i], Z[i],
+                    T[i + 1], TH[i + 1], LTH[i + 1], THE[i + 1], THES[i + 1], Z[i + 1],
                     dry_band, moist_band,
                 )
                 slot = min(k0, k1)
@@ -330,22 +332,25 @@ def _diagnose(
                 j += 1
             fraction = (low_depth - Z[j]) / (Z[j + 1] - Z[j])
             top_ln_p = LNP[j] + fraction * (LNP[j + 1] - LNP[j])
-            t1, lth1, the1, thes1, z1 = _state_at(top_ln_p, LNP, T, R, Z, n, label, theta_e_table)
+            t1, th1, lth1, the1, thes1, z1 = _state_at(
+                top_ln_p, LNP, T, R, Z, n, label, theta_e_table
+            )
             values = layer_diagnostics(
-                T[0], LTH[0], THE[0], THES[0], Z[0], t1, lth1, the1, thes1, low_depth,
-                dry_band, moist_band,
+                T[0], TH[0], LTH[0], THE[0], THES[0], Z[0],
+                t1, th1, lth1, the1, thes1, low_depth, dry_band, moist_band,
             )
             for f in range(6):
                 thick_out[c, 0, f] = values[f]
         if P[0] >= upper_bottom and P[n - 1] <= upper_top:
-            t0, lth0, the0, thes0, z0 = _state_at(
+            t0, th0, lth0, the0, thes0, z0 = _state_at(
                 math.log(upper_bottom), LNP, T, R, Z, n, label, theta_e_table
             )
-            t1, lth1, the1, thes1, z1 = _state_at(
+            t1, th1, lth1, the1, thes1, z1 = _state_at(
                 math.log(upper_top), LNP, T, R, Z, n, label, theta_e_table
             )
             values = layer_diagnostics(
-                t0, lth0, the0, thes0, z0, t1, lth1, the1, thes1, z1, dry_band, moist_band
+                t0, th0, lth0, the0, thes0, z0, t1, th1, lth1, the1, thes1, z1,
+                dry_band, moist_band,
             )
             for f in range(6):
                 thick_out[c, 1, f] = values[f]

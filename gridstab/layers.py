@@ -88,8 +88,8 @@ def classify(dry_departure, moist_departure, dry_band, moist_band):
 
 @numba.njit(cache=True, nogil=True)
 def layer_diagnostics(
-    t_bottom, ln_theta_bottom, theta_e_bottom, theta_es_bottom, z_bottom,
-    t_top, ln_theta_top, theta_e_top, theta_es_top, z_top,
+    t_bottom, theta_bottom, ln_theta_bottom, theta_e_bottom, theta_es_bottom, z_bottom,
+    t_top, theta_top, ln_theta_top, theta_e_top, theta_es_top, z_top,
     dry_band, moist_band,
 ):
     """Gradients and class of the layer between two levels.
@@ -98,8 +98,8 @@ def layer_diagnostics(
     ----------
     t_* : float
         Temperature at the layer's bottom and top, K.
-    ln_theta_* : float
-        ln(theta / K) there.
+    theta_*, ln_theta_* : float
+        theta (K) and ln(theta / K) there.
     theta_e_*, theta_es_* : float
         theta_e and theta_es there, K (NaN where undefined).
     z_* : float
@@ -118,14 +118,14 @@ def layer_diagnostics(
     if not dz > 0.0:
         return math.nan, math.nan, math.nan, math.nan, -1.0, -1.0
     lapse_rate = -(t_top - t_bottom) / dz
-    dtheta = (math.exp(ln_theta_top) - math.exp(ln_theta_bottom)) / dz
+    dtheta = (theta_top - theta_bottom) / dz
     dthetae = (theta_e_top - theta_e_bottom) / dz
     dthetaes = (theta_es_top - theta_es_bottom) / dz
     t_mean = 0.5 * (t_bottom + t_top)
     dry_departure = t_mean * (ln_theta_top - ln_theta_bottom) / dz
     # ln(theta_es/theta) ~ Lv r_s/(cpd T), and theta_es ~ theta_es_bottom + dthetaes dz
     theta_es_mean = 0.5 * (theta_es_bottom + theta_es_top)
-    theta_mean = math.exp(0.5 * (ln_theta_bottom + ln_theta_top))
+    theta_mean = 0.5 * (theta_bottom + theta_top)
     excess = theta_es_mean / theta_mean - 1.0
     lv = latent_heat_vaporisation_scalar(t_mean)
     sensitivity = 1.0 + excess * (lv / (WATER_VAPOUR_GAS_CONSTANT * t_mean) - 1.0)
