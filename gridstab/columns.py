@@ -40,6 +40,11 @@ from gridstab.thermo import virtual_temperature_scalar
 MIXING_RATIO_FLOOR = 1e-10
 """Mixing ratios below this (kg/kg), negative ones included, are raised to it."""
 
+SURFACE_GAP_LIMIT = 10000.0
+"""Pa. When the lowest valid level lies more than this above the surface (missing or
+masked data in between), the mixed-layer and most-unstable layers start at that level
+instead of at the surface."""
+
 PARCEL_SUFFIXES = {"surface_based": "sb", "mixed_layer": "ml", "most_unstable": "mu"}
 THICK_LAYERS = ("low3km", "850_500")
 
@@ -355,7 +360,9 @@ def _diagnose(
             for f in range(6):
                 thick_out[c, 1, f] = values[f]
         # parcels
-        bottom = ps if (ground_known and ps > P[0]) else P[0]
+        # the parcels' layers start at the surface, unless missing data leave the lowest
+        # valid level far above it: then they start at that level
+        bottom = ps if (ground_known and P[0] < ps <= P[0] + SURFACE_GAP_LIMIT) else P[0]
         for which in range(3):
             if which == 0:
                 p0, t0, r0 = P[0], T[0], R[0]

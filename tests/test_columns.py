@@ -151,3 +151,15 @@ def test_shapes():
         assert out[name].shape == expected, name
     with pytest.raises(ValueError, match="pressure has shape"):
         diagnose_columns(p[:, :-1], t, r)
+
+
+def test_parcels_start_at_the_lowest_level_when_data_are_missing_far_above_ground():
+    # masked garbage between the surface and 700 hPa: the parcels' layers start at the
+    # lowest valid level, and the most-unstable parcel is still found
+    p, t, r = batch(6, count=1)
+    t = t.copy()
+    t[0, p[0] > 70000.0] = np.nan
+    out = diagnose_columns(p, t, r, surface_pressure=np.array([100500.0]))
+    assert out["parcel_pressure_mu"][0] <= 70000.0
+    assert out["parcel_pressure_ml"][0] == 70000.0
+    assert np.isfinite(out["cape_ml"][0])
