@@ -766,6 +766,21 @@ def normalise_input(
             t_cands = run.candidates("potential_temperature")
             key = "potential_temperature"
         if not t_cands:
+            flat = [
+                m for role in ("temperature", "potential_temperature")
+                for m in cf.find_role(ds, role)
+                if m.name in ds.data_vars and m.units_status != "wrong"
+            ]
+            if flat:
+                var = ds[flat[0].name]
+                raise InputError(
+                    f"{flat[0].name!r} looks like air temperature, but none of its dimensions "
+                    f"{tuple(var.dims)} is a recognised vertical coordinate: no pressure levels "
+                    "(a coordinate with pressure units), no parametric coordinate with "
+                    "formula_terms, no pressure field. Fix: give the level coordinate its "
+                    "units and standard_name 'air_pressure', or name a pressure variable with "
+                    f"{_fix('pressure', '...')}."
+                )
             raise InputError(
                 "found no air temperature (nor potential temperature) on vertical levels: no "
                 "variable has standard_name 'air_temperature', a long_name such as "
@@ -817,8 +832,15 @@ def normalise_input(
     vertical = _vertical(run, t, t_var)
     run.raise_ambiguity()
     if h is None:
-        elsewhere = ", ".join(f"{c.evidence} on {c.axis.dim!r}" for c in humidity_all if c.axis)
-        found = f" Humidity found on other levels: {elsewhere}." if elsewhere else ""
+        elsewhere = ", ".join(
+            f"{c.evidence} on {c.axis.dim!r} with dimensions {tuple(ds[c.name].dims)}"
+            for c in humidity_all if c.axis
+        )
+        found = (
+            f" Humidity found on other levels or dimensions: {elsewhere}, while {t.evidence} "
+            f"has dimensions {tuple(t_var.dims)}; the dimensions must match."
+            if elsewhere else ""
+        )
         raise InputError(
             f"found no humidity (specific humidity, mixing ratio, relative humidity or dew "
             f"point) on the levels {level_dim!r} of {t.evidence}.{found} Fix: name it with "
@@ -827,6 +849,13 @@ def normalise_input(
         )
     p = vertical.pressure
     dims = t_var.dims
+    empty = [d for d in dims if t_var.sizes[d] == 0]
+    if empty:
+        raise InputError(
+            f"{t.evidence} has an empty dimension {empty[0]!r} (length 0): there is nothing "
+            "to compute. Check that the file holds data (for several files, that they were "
+            "joined along the right dimension)."
+        )
 
     # ---- surface pressure and height
     ps_name = s.surface_pressure or vertical.ps_name

@@ -202,10 +202,15 @@ def write_result(
             os.replace(partial, target)
     except BaseException as exc:
         _remove_partial(partial)
-        if isinstance(exc, OSError):
+        if isinstance(exc, OSError) or (
+            isinstance(exc, RuntimeError) and str(exc).startswith("NetCDF:")
+        ):
+            # the netCDF library reports a failed write (disk full, file-size limit,
+            # quota) as a RuntimeError such as "NetCDF: HDF error"
             raise OutputError(
                 f"writing {str(target)!r} failed: {exc}. Nothing was written and any "
-                f"previous file there is intact. Check free space and permissions in "
+                f"previous file there is intact. The disk may be full or a file-size or "
+                f"quota limit reached: check free space and permissions in "
                 f"{str(target.parent)!r}, or choose another output folder."
             ) from exc
         raise
