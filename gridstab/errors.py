@@ -36,4 +36,5 @@ EXIT_CODES = {
     "input error": 3,
     "output error": 4,
     "interrupted": 130,
+    "terminated by SIGTERM": 143,
 }
