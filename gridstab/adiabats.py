@@ -52,7 +52,6 @@ from gridstab.moisture import saturation_mixing_ratio_scalar, saturation_vapour_
 from gridstab.thermo import (
     latent_heat_vaporisation_scalar,
     lcl_on_dry_adiabat,
-    lcl_scalar,
     moist_kappa_scalar,
     potential_temperature_scalar,
     pseudoadiabat_slope_scalar,

@@ -30,9 +30,9 @@ from gridstab.parcels import (
     PARCEL_FIELDS,
     PARCEL_NAMES,
     lift_parcel,
-    pressure_stencil_or_none,
     mixed_layer_parcel,
     most_unstable_level,
+    pressure_stencil_or_none,
 )
 from gridstab.profile import bracket, linear
 from gridstab.thermo import virtual_temperature_scalar

@@ -23,7 +23,7 @@ from gridstab.columns import INTEGER_OUTPUTS, OUTPUTS, ColumnOptions, diagnose_c
 from gridstab.errors import InputError
 from gridstab.layers import CLASS_MEANINGS
 
-ESTIMATED_COLUMNS_PER_SECOND = 25000.0
+ESTIMATED_COLUMNS_PER_SECOND = 50000.0
 """Single-thread throughput of the column physics for the full set on 37 levels,
 measured by benchmarks/columns.py on a 2-core Xeon; used for time estimates only."""
 

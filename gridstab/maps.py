@@ -464,33 +464,12 @@ def cape_cin_figure(
             f"cin_{suffix} is missing: CAPE is drawn without CIN", RuntimeWarning, stacklevel=2
         )
 
-    from matplotlib.colors import BoundaryNorm, ListedColormap
     from matplotlib.lines import Line2D
 
-    cmap = ListedColormap(CAPE_COLOURS).with_extremes(under="white", over=CAPE_OVER)
-    norm = BoundaryNorm(CAPE_LEVELS, len(CAPE_COLOURS))
-    fig, ax = _new_map(grid, settings)
-    mesh = ax.pcolormesh(
-        *grid.mesh,
-        np.ma.masked_invalid(cape),
-        cmap=cmap,
-        norm=norm,
-        transform=grid.data_crs,
-        shading="auto",
-        rasterized=True,
+    fig, ax = _banded_map(
+        grid, settings, cape, colours=CAPE_COLOURS, levels=CAPE_LEVELS, under="white",
+        over=CAPE_OVER, extend="max", label="CAPE (J/kg); white: below 50 J/kg",
     )
-    bar = fig.colorbar(
-        mesh,
-        ax=ax,
-        orientation="vertical",
-        extend="max",
-        shrink=0.85,
-        pad=0.02,
-        aspect=30,
-        ticks=CAPE_LEVELS,
-    )
-    bar.set_label("CAPE (J/kg); white: below 50 J/kg", fontsize=9)
-    bar.ax.tick_params(labelsize=8)
     if cin is not None and np.isfinite(cin).any():
         nonzero = cin[np.isfinite(cin) & (cin != 0)]
         sign = -1.0 if nonzero.size and np.median(nonzero) < 0 else 1.0
@@ -583,32 +562,11 @@ def lcl_height_figure(
             f"{var.name}: units {units!r} not understood; taken as m", RuntimeWarning, stacklevel=2
         )
 
-    from matplotlib.colors import BoundaryNorm, ListedColormap
 
-    cmap = ListedColormap(LCL_COLOURS).with_extremes(under=LCL_UNDER, over=LCL_OVER)
-    norm = BoundaryNorm(LCL_LEVELS, len(LCL_COLOURS))
-    fig, ax = _new_map(grid, settings)
-    mesh = ax.pcolormesh(
-        *grid.mesh,
-        np.ma.masked_invalid(height),
-        cmap=cmap,
-        norm=norm,
-        transform=grid.data_crs,
-        shading="auto",
-        rasterized=True,
+    fig, ax = _banded_map(
+        grid, settings, height, colours=LCL_COLOURS, levels=LCL_LEVELS, under=LCL_UNDER,
+        over=LCL_OVER, extend="both", label="LCL height above ground (m)",
     )
-    bar = fig.colorbar(
-        mesh,
-        ax=ax,
-        orientation="vertical",
-        extend="both",
-        shrink=0.85,
-        pad=0.02,
-        aspect=30,
-        ticks=LCL_LEVELS,
-    )
-    bar.set_label("LCL height above ground (m)", fontsize=9)
-    bar.ax.tick_params(labelsize=8)
     _finish(
         fig,
         ax,
@@ -1155,6 +1113,31 @@ def _share(count: int, total: int) -> str:
 
 # --------------------------------------------------------------------------------------
 # figure scaffolding
+
+
+def _banded_map(grid, settings, values, *, colours, levels, under, over, extend, label):
+    """A new map with ``values`` in colour bands between ``levels`` and a colour bar."""
+    from matplotlib.colors import BoundaryNorm, ListedColormap
+
+    cmap = ListedColormap(colours).with_extremes(under=under, over=over)
+    norm = BoundaryNorm(levels, len(colours))
+    fig, ax = _new_map(grid, settings)
+    mesh = ax.pcolormesh(
+        *grid.mesh,
+        np.ma.masked_invalid(values),
+        cmap=cmap,
+        norm=norm,
+        transform=grid.data_crs,
+        shading="auto",
+        rasterized=True,
+    )
+    bar = fig.colorbar(
+        mesh, ax=ax, orientation="vertical", extend=extend, shrink=0.85, pad=0.02,
+        aspect=30, ticks=levels,
+    )
+    bar.set_label(label, fontsize=9)
+    bar.ax.tick_params(labelsize=8)
+    return fig, ax
 
 
 def _new_map(grid: _Grid, settings: MapSettings) -> tuple[Any, Any]:

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 import reference
+
 from gridstab import adiabats, moisture, thermo
 
 # Goal (project physics notes): within 0.05 K of a numerical integration of the

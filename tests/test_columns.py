@@ -6,9 +6,9 @@ import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
+from soundings import layered_sounding
 
 from gridstab.columns import OUTPUTS, diagnose_columns
-from soundings import STANDARD_LEVELS, layered_sounding
 
 SETTINGS = settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 

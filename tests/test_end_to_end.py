@@ -10,8 +10,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 import xarray as xr
-
 from cfcheck import run_cf_checker
+
 from gridstab.columns import diagnose_columns
 from gridstab.engine import EngineSettings, diagnose
 from gridstab.reading import open_model_output

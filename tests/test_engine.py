@@ -7,12 +7,12 @@ import dask.array as dsa
 import numpy as np
 import pytest
 import xarray as xr
+from soundings import STANDARD_LEVELS, layered_sounding
 
 from gridstab.columns import ColumnOptions, diagnose_columns
 from gridstab.engine import EngineSettings, choose_chunks, diagnose, output_metadata
 from gridstab.errors import InputError
 from gridstab.reading import open_model_output
-from soundings import STANDARD_LEVELS, layered_sounding
 
 
 def synthetic(nt=2, ny=4, nx=5, seed=0):

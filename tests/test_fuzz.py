@@ -4,6 +4,7 @@ attributes give success or a clear error, never a traceback."""
 from __future__ import annotations
 
 import numpy as np
+from hostile import good_dataset
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
@@ -12,7 +13,6 @@ from gridstab.columns import diagnose_columns
 from gridstab.engine import diagnose
 from gridstab.errors import GridstabError
 from gridstab.reading import normalise_input
-from hostile import good_dataset
 
 
 @st.composite

@@ -3,7 +3,6 @@ no output left behind, and the input untouched."""
 
 from __future__ import annotations
 
-import os
 import signal
 import subprocess
 import sys
@@ -12,9 +11,9 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from hostile import digest, good_dataset, write
 
 from gridstab.cli import run
-from hostile import digest, good_dataset, write
 
 
 def compute(capsys, *args):

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 import reference
+
 from gridstab import moisture, thermo
 from gridstab.columns import ColumnOptions, diagnose_columns
 from gridstab.layers import (

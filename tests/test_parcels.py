@@ -4,10 +4,10 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 import reference
-from gridstab.columns import ColumnOptions, diagnose_columns
 from soundings import STANDARD_LEVELS, layered_sounding
+
+from gridstab.columns import ColumnOptions, diagnose_columns
 
 
 def run(p, t, r, **kwargs):

@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+import reference
 from ambiance import Atmosphere
 
-import reference
 from gridstab import thermo
 
 
