@@ -345,6 +345,18 @@ def ln_theta_es_scalar(temperature, pressure, label):
 
 
 @numba.njit(cache=True, nogil=True)
+def ln_theta_es_with_stencil(temperature, j, v0, v1, v2, v3, label):
+    """ln theta_es at T (K) on the table rows of a precomputed pressure stencil.
+
+    The caller guarantees that the pressure lies inside the table (``j >= 0``).
+    """
+    if not (temperature >= TEMPERATURE_FIRST and temperature <= 350.0):
+        return math.nan
+    i, w0, w1, w2, w3 = stencil(temperature, TEMPERATURE_FIRST, TEMPERATURE_STEP, TEMPERATURE_COUNT)
+    return bicubic(label, j, v0, v1, v2, v3, i, w0, w1, w2, w3)
+
+
+@numba.njit(cache=True, nogil=True)
 def ln_theta_e_scalar(temperature, pressure, mixing_ratio, theta_e_table):
     """ln(theta_e / K) of air at (T in K, p in Pa, r in kg/kg); see ln_theta_e_from_logs."""
     if not (temperature > 0.0 and pressure > 0.0):

@@ -669,7 +669,11 @@ def _compute(args: argparse.Namespace, state: _RunState) -> int:
 
     with _as_error(InputError, "cannot read the input"):
         ds = open_model_output(inputs, settings=settings.input)
-    log.info("read %d input file(s); diagnosing the columns", len(inputs))
+    log.info(
+        "read %d input file(s); diagnosing the columns (the very first run also compiles "
+        "the column physics, which takes about a minute)",
+        len(inputs),
+    )
     result = diagnose(ds, options=settings.physics, settings=settings.engine)
     state.doing = f"computing and writing {str(output)!r}"
     with (

@@ -18,11 +18,15 @@ import numba
 import numpy as np
 
 from gridstab.adiabats import (
+    LN_P_COUNT,
+    LN_P_STEP,
+    LN_P_TOP,
     LN_REFERENCE_PRESSURE,
     adiabat_tables,
     ln_theta_e_from_all_logs,
     ln_theta_e_from_logs,
     ln_theta_es_scalar,
+    ln_theta_es_with_stencil,
 )
 from gridstab.constants import DRY_AIR_GAS_CONSTANT, EPSILON, KAPPA, STANDARD_GRAVITY
 from gridstab.layers import LAYER_FIELDS, layer_diagnostics
@@ -36,6 +40,9 @@ from gridstab.parcels import (
 )
 from gridstab.profile import bracket, linear
 from gridstab.thermo import virtual_temperature_scalar
+
+LN_P_BOTTOM = LN_P_TOP + (LN_P_COUNT - 1) * LN_P_STEP
+"""ln of the highest pressure (Pa) of the adiabat tables."""
 
 MIXING_RATIO_FLOOR = 1e-10
 """Mixing ratios below this (kg/kg), negative ones included, are raised to it."""
@@ -270,14 +277,18 @@ def _diagnose(
             LTH[i] = LNT[i] + KAPPA * (LN_REFERENCE_PRESSURE - LNP[i])
             LTHE[i] = ln_theta_e_from_all_logs(LNT[i], LNP[i], R[i], LNR[i], theta_e_table)
             THE[i] = math.exp(LTHE[i])
-            THES[i] = math.exp(ln_theta_es_scalar(T[i], P[i], label))
-        for i in range(n):
+            # the label table shares its pressure rows with the parcel table
             j, v0, v1, v2, v3 = pressure_stencil_or_none(LNP[i])
             LEVEL_STENCIL[i] = j
             WEIGHTS[0, i, 0] = v0
             WEIGHTS[0, i, 1] = v1
             WEIGHTS[0, i, 2] = v2
             WEIGHTS[0, i, 3] = v3
+            if j >= 0 and LNP[i] <= LN_P_BOTTOM:
+                THES[i] = math.exp(ln_theta_es_with_stencil(T[i], j, v0, v1, v2, v3, label))
+            else:
+                THES[i] = math.exp(ln_theta_es_scalar(T[i], P[i], label))
+        for i in range(n):
             if i < n - 1:
                 j, v0, v1, v2, v3 = pressure_stencil_or_none(0.5 * (LNP[i] + LNP[i + 1]))
                 MID_STENCIL[i] = j
