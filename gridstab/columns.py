@@ -264,6 +264,8 @@ def _diagnose(
     MID_STENCIL = np.empty(size, dtype=np.int64)
     WEIGHTS = np.zeros((2, size, 4))
     row = np.empty(parcels_out.shape[2])
+    profile = np.empty((LN_P_COUNT, 2))
+    filled = np.empty(2, dtype=np.int64)
     hyps = DRY_AIR_GAS_CONSTANT / STANDARD_GRAVITY
     for c in range(ncol):
         n = _compact(
@@ -390,7 +392,7 @@ def _diagnose(
                     continue
             lift_parcel(
                 p0, t0, r0, LNP, T, R, TV, Z, MINTH, n, LEVEL_STENCIL, MID_STENCIL, WEIGHTS,
-                reversible, virtual, li_pressure, parcel_table, label, row,
+                reversible, virtual, li_pressure, parcel_table, label, profile, filled, row,
             )
             for f in range(row.size):
                 parcels_out[c, which, f] = row[f]
