@@ -1242,7 +1242,9 @@ def _pressure_levels(run: _Normaliser, axis: cf.VerticalAxis) -> _Vertical:
     if values.size > 1 and not (np.all(np.diff(values) > 0) or np.all(np.diff(values) < 0)):
         raise InputError(
             f"the pressure levels {name!r} are not strictly monotonic ({values} Pa); "
-            "gridstab needs distinct levels in either order."
+            "gridstab needs distinct levels in either order. Fix: remove the repeated or "
+            "out-of-order levels from the file (for example by selecting the levels you "
+            "need with a NetCDF tool or xarray) and run again."
         )
     if not s.pressure_units:
         if values.max() < MIN_BOTTOM_PRESSURE:
