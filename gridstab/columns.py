@@ -27,9 +27,17 @@ from gridstab.adiabats import (
     ln_theta_e_from_logs,
     ln_theta_es_scalar,
     ln_theta_es_with_stencil,
+    parcel_state_scalar,
 )
-from gridstab.constants import DRY_AIR_GAS_CONSTANT, EPSILON, KAPPA, STANDARD_GRAVITY
+from gridstab.constants import (
+    DRY_AIR_GAS_CONSTANT,
+    EPSILON,
+    FREEZING_POINT,
+    KAPPA,
+    STANDARD_GRAVITY,
+)
 from gridstab.layers import LAYER_FIELDS, layer_diagnostics
+from gridstab.moisture import dew_point_from_mixing_ratio_scalar
 from gridstab.parcels import (
     PARCEL_FIELDS,
     PARCEL_NAMES,
@@ -39,7 +47,7 @@ from gridstab.parcels import (
     pressure_stencil_or_none,
 )
 from gridstab.profile import bracket, linear
-from gridstab.thermo import virtual_temperature_scalar
+from gridstab.thermo import lcl_scalar, moist_kappa_scalar, virtual_temperature_scalar
 
 LN_P_BOTTOM = LN_P_TOP + (LN_P_COUNT - 1) * LN_P_STEP
 """ln of the highest pressure (Pa) of the adiabat tables."""
@@ -51,6 +59,13 @@ SURFACE_GAP_LIMIT = 10000.0
 """Pa. When the lowest valid level lies more than this above the surface (missing or
 masked data in between), the mixed-layer and most-unstable layers start at that level
 instead of at the surface."""
+
+INDEX_FIELDS = ("k_index", "total_totals", "showalter_index")
+"""Classic indices from the 850, 700 and 500 hPa levels (George 1960; Miller 1972;
+Showalter 1953): K = (T850 - T500) + Td850 - (T700 - Td700) with Td850 in degC; total totals =
+T850 + Td850 - 2 T500; Showalter = T500 minus the temperature of a parcel lifted from
+850 hPa (pseudo-adiabatic, plain temperatures). Missing where 850 hPa is below ground
+or 500 hPa above the data."""
 
 PARCEL_SUFFIXES = {"surface_based": "sb", "mixed_layer": "ml", "most_unstable": "mu"}
 THICK_LAYERS = ("low3km", "850_500")
@@ -131,6 +146,8 @@ def output_names(nlev: int | None = None) -> dict[str, str]:
     for layer in THICK_LAYERS:
         for name in LAYER_FIELDS:
             names[f"{name}_{layer}"] = "column"
+    for name in INDEX_FIELDS:
+        names[name] = "column"
     for name in ("theta", "theta_e", "theta_es"):
         names[name] = "level"
     for name in LAYER_FIELDS:
@@ -234,6 +251,41 @@ def _state_at(target_ln_p, LNP, T, R, Z, count, label, theta_e_table):
 
 
 @numba.njit(cache=True, nogil=True)
+def _classic_indices(LNP, T, R, count, parcel_table, label, index_out, c):
+    """K index, total totals and Showalter index of column c (see INDEX_FIELDS), in K."""
+    ln850 = math.log(85000.0)
+    ln700 = math.log(70000.0)
+    ln500 = math.log(50000.0)
+    k850 = bracket(LNP, count, ln850)
+    k700 = bracket(LNP, count, ln700)
+    k500 = bracket(LNP, count, ln500)
+    if k850 < 0 or k700 < 0 or k500 < 0:
+        return
+    k850 = min(k850, count - 2)
+    k700 = min(k700, count - 2)
+    k500 = min(k500, count - 2)
+    t850 = linear(LNP, T, k850, ln850)
+    r850 = linear(LNP, R, k850, ln850)
+    t700 = linear(LNP, T, k700, ln700)
+    r700 = linear(LNP, R, k700, ln700)
+    t500 = linear(LNP, T, k500, ln500)
+    td850 = dew_point_from_mixing_ratio_scalar(r850, 85000.0)
+    td700 = dew_point_from_mixing_ratio_scalar(r700, 70000.0)
+    # the K index adds the 850 hPa dew point in degrees Celsius (common practice)
+    index_out[c, 0] = (t850 - t500) + (td850 - FREEZING_POINT) - (t700 - td700)
+    index_out[c, 1] = t850 + td850 - 2.0 * t500
+    p_lcl, t_lcl = lcl_scalar(t850, 85000.0, r850)
+    if not math.isfinite(p_lcl):
+        return
+    if p_lcl <= 50000.0:
+        parcel = t850 * math.exp(moist_kappa_scalar(r850) * (ln500 - ln850))
+    else:
+        ln_theta_e = ln_theta_es_scalar(t_lcl, p_lcl, label)
+        parcel = parcel_state_scalar(ln_theta_e, 50000.0, parcel_table)[0]
+    index_out[c, 2] = t500 - parcel
+
+
+@numba.njit(cache=True, nogil=True)
 def _diagnose(
     pressure, ln_p_all, temperature, ln_t_all, mixing_ratio, ln_r_all, theta_all, tv_all,
     height, has_height, surface_pressure, has_surface, surface_height, has_surface_height,
@@ -241,7 +293,7 @@ def _diagnose(
     reversible, virtual, ml_depth, mu_depth, dry_band, moist_band,
     low_depth, upper_bottom, upper_top, li_pressure, want_levels,
     parcel_table, label, theta_e_table,
-    parcels_out, thick_out, level_out, layer_out, layer_flags,
+    parcels_out, thick_out, index_out, level_out, layer_out, layer_flags,
 ):
     ncol, nlev = pressure.shape
     size = nlev + 1
@@ -372,6 +424,9 @@ def _diagnose(
             )
             for f in range(6):
                 thick_out[c, 1, f] = values[f]
+        # classic indices
+        if P[0] >= 85000.0 and P[n - 1] <= 50000.0:
+            _classic_indices(LNP, T, R, n, parcel_table, label, index_out, c)
         # parcels
         # the parcels' layers start at the surface, unless missing data leave the lowest
         # valid level far above it: then they start at that level
@@ -491,6 +546,7 @@ def diagnose_columns(
         tv = t * (1.0 + r_floor / EPSILON) / (1.0 + r_floor)
     parcels_out = np.full((ncol, 3, len(PARCEL_FIELDS)), np.nan)
     thick_out = np.full((ncol, 2, len(LAYER_FIELDS)), np.nan)
+    index_out = np.full((ncol, len(INDEX_FIELDS)), np.nan)
     want_levels = bool(per_level)
     level_shape = (3, ncol, nlev) if want_levels else (3, 0, 0)
     layer_shape = (4, ncol, max(nlev - 1, 0)) if want_levels else (4, 0, 0)
@@ -508,7 +564,7 @@ def diagnose_columns(
             float(options.low_layer_depth_m), options.upper_layer_bottom_hpa * 100.0,
             options.upper_layer_top_hpa * 100.0, options.lifted_index_pressure_hpa * 100.0,
             want_levels, tables.parcel, tables.label, tables.theta_e,
-            parcels_out, thick_out, level_out, layer_out, layer_flags,
+            parcels_out, thick_out, index_out, level_out, layer_out, layer_flags,
         )
     result: dict[str, np.ndarray] = {}
     for w, parcel in enumerate(PARCEL_NAMES):
@@ -517,6 +573,8 @@ def diagnose_columns(
     for w, layer in enumerate(THICK_LAYERS):
         for f, name in enumerate(LAYER_FIELDS):
             result[f"{name}_{layer}"] = thick_out[:, w, f]
+    for f, name in enumerate(INDEX_FIELDS):
+        result[name] = index_out[:, f]
     for name, values in result.items():
         if name in INTEGER_OUTPUTS:
             result[name] = np.where(np.isfinite(values), values, -1).astype(np.int8)

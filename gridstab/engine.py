@@ -141,6 +141,17 @@ def output_metadata(name: str) -> dict:
         }[name]
     if kind == "layer":
         return _layer_metadata(name[len("layer_"):], "layer between adjacent levels")
+    indices = {
+        "k_index": dict(standard_name="atmosphere_stability_k_index", units="K",
+                        long_name="K index (T850 - T500) + Td850 - (T700 - Td700), Td850 in degC",
+                        comment="an index on the Celsius scale, stored in K as CF asks"),
+        "total_totals": dict(standard_name="atmosphere_stability_total_totals_index", units="K",
+                             long_name="total totals index T850 + Td850 - 2 T500"),
+        "showalter_index": dict(standard_name="atmosphere_stability_showalter_index", units="K",
+                                long_name="Showalter index: T500 minus a parcel lifted from 850 hPa"),
+    }
+    if name in indices:
+        return indices[name]
     for suffix in PARCEL_LABELS:
         if name.endswith("_" + suffix):
             return _parcel_metadata(name[: -len(suffix) - 1], suffix)

@@ -135,3 +135,35 @@ def test_most_unstable_parcel_is_highest_theta_e_in_lowest_300_hpa():
         assert out["parcel_pressure_mu"][0] == p[level]
         ref = reference.cape_cin(p, t, r, origin=level)
         assert abs(out["cape_mu"][0] - ref["cape"]) <= max(0.005 * ref["cape"], 2.0)
+
+
+def test_classic_indices_by_hand_and_against_the_reference_parcel():
+    # K index (George 1960) and total totals (Miller 1972) by hand from the sounding's
+    # 850/700/500 hPa values, dew points from the IAPWS-checked saturation curve by
+    # Brent's method; Showalter index (Showalter 1953) with the reference parcel from
+    # 850 hPa (tests/reference.py). Values in degC scale as common practice.
+    from scipy.optimize import brentq
+
+    p, t, r, z = reference.weisman_klemp_sounding(STANDARD_LEVELS)
+    ours = run(p, t, r)
+    ln_p = -np.log(p)
+
+    def at(values, pressure):
+        return float(np.interp(-np.log(pressure), ln_p, values))
+
+    def dew_point(mixing_ratio, pressure):
+        e = pressure * mixing_ratio / (reference.EPS + mixing_ratio)
+        return brentq(lambda x: reference.es(x) - e, 180.0, 330.0, xtol=1e-10)
+
+    t850, t700, t500 = at(t, 85000.0), at(t, 70000.0), at(t, 50000.0)
+    td850 = dew_point(at(r, 85000.0), 85000.0)
+    td700 = dew_point(at(r, 70000.0), 70000.0)
+    k_index = (t850 - t500) + (td850 - 273.15) - (t700 - td700)
+    totals = (t850 - 273.15) + (td850 - 273.15) - 2 * (t500 - 273.15)
+    assert ours["k_index"] == pytest.approx(k_index, abs=1e-3)
+    assert ours["total_totals"] == pytest.approx(totals, abs=1e-3)
+    parcel, _, _, _ = reference.parcel_profile(t850, 85000.0, at(r, 85000.0), np.array([50000.0]))
+    assert ours["showalter_index"] == pytest.approx(t500 - parcel[0], abs=0.05)
+    # a very unstable sounding: forecasting handbooks put K above 35 and TT above 50
+    # there (bands quoted from memory)
+    assert ours["k_index"] > 30 and ours["total_totals"] > 50 and ours["showalter_index"] < 0
