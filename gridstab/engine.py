@@ -274,6 +274,8 @@ def diagnose(
         "geopotential_height": ("height", [level_dim]),
         "surface_air_pressure": ("surface_pressure", []),
         "surface_altitude": ("surface_height", []),
+        "surface_air_temperature": ("surface_temperature", []),
+        "surface_mixing_ratio": ("surface_mixing_ratio", []),
     }
     for variable, (keyword, dims) in optional.items():
         if variable in ds:

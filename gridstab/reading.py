@@ -166,6 +166,10 @@ class InputSettings:
     humidity_above_top: Literal["dry", "missing"] = "dry"
     """Levels above the highest level with humidity: "dry" sets the mixing ratio to 1e-10 kg/kg there, "missing" leaves them missing."""
 
+    near_surface: bool = True
+    """Use near-surface (2 m) air temperature and humidity, when the file has them on the
+    surface grid together with a surface pressure, as the surface level (and so the
+    surface-based parcel)."""
     check_values: bool = True
     """Scan the data once on opening for impossible values and the counters; false skips the scan."""
 
@@ -929,6 +933,12 @@ def normalise_input(
             f"surface_altitude <- {zs_evidence}, units {ds.variables[zs_name].attrs.get('units')!r}: {how}"
         )
 
+    # ---- near-surface (2 m) air, used as the surface level when there is a surface pressure
+    near_t = near_r = None
+    near_sources: dict[str, tuple[str, str | None]] = {}
+    if s.near_surface and ps is not None:
+        near_t, near_r, near_sources = _near_surface_air(run, t_var, level_dim, ps, lines)
+
     # ---- temperature
     unit = run.unit(t.name, "temperature_units", (cf.TEMPERATURE,), what="temperature")
     t_si = unit.to_si(run.masked(t.name))
@@ -1072,6 +1082,8 @@ def normalise_input(
             "geopotential_height": height,
             "surface_air_pressure": ps,
             "surface_altitude": zs,
+            "surface_air_temperature": near_t,
+            "surface_mixing_ratio": near_r,
         },
         sources={
             "air_temperature": (t.name, t.units),
@@ -1084,6 +1096,7 @@ def normalise_input(
             "surface_altitude": (zs_name, ds.variables[zs_name].attrs.get("units"))
             if zs_name
             else None,
+            **near_sources,
         },
     )
     out.attrs.update(
@@ -1540,6 +1553,9 @@ def _assemble(
         "geopotential_height": ("geopotential_height", "geopotential height", "m"),
         "surface_air_pressure": ("surface_air_pressure", "surface air pressure", "Pa"),
         "surface_altitude": ("surface_altitude", "surface altitude", "m"),
+        "surface_air_temperature": ("air_temperature", "near-surface air temperature", "K"),
+        "surface_mixing_ratio": ("humidity_mixing_ratio", "near-surface water vapour mixing ratio",
+                                 "kg kg-1"),
     }
     data_vars = {}
     for name, da in fields.items():
@@ -1707,3 +1723,69 @@ def _describe_time(ds: xr.Dataset, t: xr.DataArray) -> str:
     first, last = str(values.flat[0])[:19], str(values.flat[-1])[:19]
     span = first if n == 1 else f"{first} to {last}"
     return f"{n} step{'s' if n != 1 else ''}, {span}, calendar {calendar or 'standard (assumed)'}"
+
+
+_NEAR_SURFACE_TEMPERATURE_NAMES = {"tas", "t2m", "t2", "2t", "t_2m", "temp2m", "air_temperature_2m"}
+_NEAR_SURFACE_HUMIDITY = {
+    # kind: (standard names, variable names)
+    "specific_humidity": ({"specific_humidity"}, {"huss", "q2", "q2m", "sh2", "qv2m"}),
+    "dew_point": ({"dew_point_temperature"}, {"d2m", "td2m", "2d", "td2", "dewpoint_2m"}),
+    "relative_humidity": ({"relative_humidity"}, {"hurs", "rh2m", "rh2", "r2"}),
+}
+
+
+def _near_surface_air(run, t_var, level_dim, ps, lines):
+    """Near-surface temperature (K) and mixing ratio (kg/kg) on the surface grid, or Nones.
+
+    Recognised by standard_name (air_temperature; specific_humidity, dew_point_temperature
+    or relative_humidity) on the surface grid, or by the usual 2 m names. Two candidates
+    for one of them: neither is used, and the recognition text says so.
+    """
+    ds = run.ds
+    temperature_names = []
+    humidity_names: list[tuple[str, str]] = []
+    for name in ds.data_vars:
+        if name == t_var.name or run.surface_field(name, t_var, level_dim) is None:
+            continue
+        standard = str(ds[name].attrs.get("standard_name", ""))
+        lower = str(name).lower()
+        if standard == "air_temperature" or lower in _NEAR_SURFACE_TEMPERATURE_NAMES:
+            temperature_names.append(name)
+        for kind, (standards, names) in _NEAR_SURFACE_HUMIDITY.items():
+            if standard in standards or lower in names:
+                humidity_names.append((name, kind))
+    if len(temperature_names) != 1 or len(humidity_names) != 1:
+        if temperature_names or humidity_names:
+            lines.append(
+                "near-surface air not used: need exactly one temperature and one humidity on "
+                f"the surface grid, found {temperature_names} and {[n for n, _ in humidity_names]}"
+            )
+        return None, None, {}
+    t_name = temperature_names[0]
+    h_name, kind = humidity_names[0]
+    t_unit = run.unit(t_name, "", (cf.TEMPERATURE,), what="near-surface temperature",
+                      name_key="temperature")
+    near_t = t_unit.to_si(run.masked(t_name, run.surface_field(t_name, t_var, level_dim)))
+    raw = run.masked(h_name, run.surface_field(h_name, t_var, level_dim))
+    if kind == "dew_point":
+        unit = run.unit(h_name, "", (cf.TEMPERATURE,), what="near-surface dew point",
+                        name_key="humidity")
+        near_r = _elementwise(moisture.mixing_ratio_from_dew_point, unit.to_si(raw), ps, like=ps)
+    else:
+        unit = run.unit(h_name, "", (cf.DIMENSIONLESS,), what=f"near-surface {kind.replace('_', ' ')}",
+                        name_key="humidity")
+        value = unit.to_si(raw)
+        if kind == "relative_humidity":
+            near_r = _elementwise(moisture.mixing_ratio_from_relative_humidity, value, near_t, ps,
+                                  like=ps)
+        else:
+            near_r = _elementwise(moisture.mixing_ratio_from_specific_humidity, value, like=ps)
+    lines.append(
+        f"surface level <- near-surface temperature {t_name!r} and {kind.replace('_', ' ')} "
+        f"{h_name!r} at the surface pressure (turn off with [input] near_surface = false)"
+    )
+    sources = {
+        "surface_air_temperature": (t_name, ds[t_name].attrs.get("units")),
+        "surface_mixing_ratio": (h_name, ds[h_name].attrs.get("units")),
+    }
+    return near_t, near_r, sources

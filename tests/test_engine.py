@@ -126,3 +126,29 @@ def test_real_hybrid_file_end_to_end(real_data_dir):
     with dask.config.set(scheduler="synchronous"):
         single = diagnose(ds.isel(time=[0], latitude=[0], longitude=[0])).compute()
     np.testing.assert_allclose(single["cape_mu"].values.ravel(), cape[0, 0, 0], rtol=1e-6)
+
+
+def test_near_surface_air_becomes_the_surface_level():
+    # a 2 m temperature and specific humidity (CF names tas/huss style) with a surface
+    # pressure: the surface-based parcel starts at the surface with those values
+    from gridstab.reading import InputSettings, normalise_input
+    from hostile import good_dataset
+
+    ds = good_dataset(nt=1, ny=2, nx=2)
+    surface = ("time", "lat", "lon")
+    ds["ps"] = (surface, np.full((1, 2, 2), 101000.0),
+                {"standard_name": "surface_air_pressure", "units": "Pa"})
+    ds["tas"] = (surface, np.full((1, 2, 2), 303.0), {"standard_name": "air_temperature",
+                                                     "units": "K"})
+    ds["huss"] = (surface, np.full((1, 2, 2), 0.016), {"standard_name": "specific_humidity",
+                                                      "units": "1"})
+    normalised = normalise_input(ds)
+    assert "surface_air_temperature" in normalised and "surface_mixing_ratio" in normalised
+    out = diagnose(normalised).compute()
+    np.testing.assert_allclose(out["parcel_pressure_sb"].values, 101000.0)
+    r = 0.016 / (1 - 0.016)
+    ref_p, ref_t = __import__("reference").lcl(303.0, 101000.0, r)
+    np.testing.assert_allclose(out["lcl_pressure_sb"].values, ref_p, atol=1.0)
+    # and it can be switched off
+    plain = diagnose(normalise_input(ds, settings=InputSettings(near_surface=False))).compute()
+    assert np.all(plain["parcel_pressure_sb"].values == 100000.0)
