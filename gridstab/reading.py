@@ -1725,35 +1725,38 @@ def _describe_time(ds: xr.Dataset, t: xr.DataArray) -> str:
     return f"{n} step{'s' if n != 1 else ''}, {span}, calendar {calendar or 'standard (assumed)'}"
 
 
-_NEAR_SURFACE_TEMPERATURE_NAMES = {"tas", "t2m", "t2", "2t", "t_2m", "temp2m", "air_temperature_2m"}
-_NEAR_SURFACE_HUMIDITY = {
-    # kind: (standard names, variable names)
-    "specific_humidity": ({"specific_humidity"}, {"huss", "q2", "q2m", "sh2", "qv2m"}),
-    "dew_point": ({"dew_point_temperature"}, {"d2m", "td2m", "2d", "td2", "dewpoint_2m"}),
-    "relative_humidity": ({"relative_humidity"}, {"hurs", "rh2m", "rh2", "r2"}),
+_NEAR_SURFACE_HUMIDITY_ROLES = {
+    "near_surface_specific_humidity": "specific_humidity",
+    "near_surface_dew_point": "dew_point",
+    "near_surface_relative_humidity": "relative_humidity",
 }
 
 
 def _near_surface_air(run, t_var, level_dim, ps, lines):
     """Near-surface temperature (K) and mixing ratio (kg/kg) on the surface grid, or Nones.
 
-    Recognised by standard_name (air_temperature; specific_humidity, dew_point_temperature
-    or relative_humidity) on the surface grid, or by the usual 2 m names. Two candidates
-    for one of them: neither is used, and the recognition text says so.
+    Recognised through the ``near_surface_*`` roles of :data:`gridstab.cf.CRITERIA`
+    (standard name or the usual 2 m names) among the variables on the surface grid. Two
+    candidates for one of them: neither is used, and the recognition text says so.
     """
     ds = run.ds
-    temperature_names = []
-    humidity_names: list[tuple[str, str]] = []
-    for name in ds.data_vars:
-        if name == t_var.name or run.surface_field(name, t_var, level_dim) is None:
-            continue
-        standard = str(ds[name].attrs.get("standard_name", ""))
-        lower = str(name).lower()
-        if standard == "air_temperature" or lower in _NEAR_SURFACE_TEMPERATURE_NAMES:
-            temperature_names.append(name)
-        for kind, (standards, names) in _NEAR_SURFACE_HUMIDITY.items():
-            if standard in standards or lower in names:
-                humidity_names.append((name, kind))
+
+    def on_surface_grid(role: str) -> list[str]:
+        return [
+            m.name
+            for m in cf.find_role(ds, role)
+            if m.name in ds.data_vars
+            and m.name not in ds.indexes
+            and m.name != t_var.name
+            and run.surface_field(m.name, t_var, level_dim) is not None
+        ]
+
+    temperature_names = on_surface_grid("near_surface_temperature")
+    humidity_names = [
+        (name, kind)
+        for role, kind in _NEAR_SURFACE_HUMIDITY_ROLES.items()
+        for name in on_surface_grid(role)
+    ]
     if len(temperature_names) != 1 or len(humidity_names) != 1:
         if temperature_names or humidity_names:
             lines.append(
