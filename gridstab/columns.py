@@ -342,7 +342,6 @@ def _diagnose(
                 THES[i] = math.exp(ln_theta_es_with_stencil(T[i], j, v0, v1, v2, v3, label))
             else:
                 THES[i] = math.exp(ln_theta_es_scalar(T[i], P[i], label))
-        for i in range(n):
             if i < n - 1:
                 j, v0, v1, v2, v3 = pressure_stencil_or_none(0.5 * (LNP[i] + LNP[i + 1]))
                 MID_STENCIL[i] = j

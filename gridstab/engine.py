@@ -265,7 +265,7 @@ def diagnose(
 
     def prepare(da: xr.DataArray) -> xr.DataArray:
         da = da.chunk({d: chunks[d] for d in da.dims if d in chunks})
-        return da.reset_coords(drop=True) if hasattr(da, "reset_coords") else da
+        return da.reset_coords(drop=True)
 
     inputs = [prepare(ds["air_pressure"]), prepare(temperature), prepare(ds["humidity_mixing_ratio"])]
     core = [[level_dim]] * 3

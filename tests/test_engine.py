@@ -131,8 +131,9 @@ def test_real_hybrid_file_end_to_end(real_data_dir):
 def test_near_surface_air_becomes_the_surface_level():
     # a 2 m temperature and specific humidity (CF names tas/huss style) with a surface
     # pressure: the surface-based parcel starts at the surface with those values
-    from gridstab.reading import InputSettings, normalise_input
     from hostile import good_dataset
+
+    from gridstab.reading import InputSettings, normalise_input
 
     ds = good_dataset(nt=1, ny=2, nx=2)
     surface = ("time", "lat", "lon")
