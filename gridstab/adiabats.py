@@ -4,12 +4,13 @@ Definition
 ----------
 A saturated parcel follows the pseudo-adiabat
 
-    dT/d(ln p) = (1 + r/eps)(Rd T + Lv r) / (cpd + r cpv + Lv^2 r (eps + r)/(Rd T^2)),
+    dT/d(ln p) = (1 + r/eps)(Rd T + Lv r) / (cpd + r cpv + Lv dr/dT),
 
-r the saturation mixing ratio over liquid water, Lv linear in T (Kirchhoff). This is
-the pseudo-adiabatic lapse rate of the AMS Glossary of Meteorology (2nd ed., 2000)
-written in pressure with the hydrostatic equation for moist air; condensate leaves
-the parcel as it forms.
+r the saturation mixing ratio over liquid water, Lv linear in T (Kirchhoff) and
+dr/dT = r (1 + r/eps) d(ln e_s)/dT with the derivative of gridstab's own saturation
+curve (``gridstab.moisture``). This is the first law per unit mass of dry air with the
+condensate leaving the parcel as it forms (the pseudo-adiabatic lapse rate of the AMS
+Glossary of Meteorology, 2nd ed., 2000, written in pressure).
 
 * theta_e (pseudo-equivalent potential temperature): lift the parcel dry-adiabatically
   at constant mixing ratio to its LCL, then along the pseudo-adiabat until no vapour
@@ -35,6 +36,14 @@ Look-ups use bicubic (4 x 4 point Lagrange) interpolation. The error of the tabl
 against an independent ODE integration is measured by the tests. Where the
 saturation vapour pressure exceeds half the air pressure (warm air at very low
 pressure) saturated quantities are undefined and NaN is returned.
+
+Where saturated quantities are reported
+---------------------------------------
+Only where e_s <= SATURATION_LIMIT * p (0.12: saturated air at 48 degC and 1000 hPa,
+20 degC and 200 hPa). Beyond it theta_es is ill-conditioned: a change of 1e-4 in e_s,
+the size of the differences between the best formulations of the saturation curve,
+moves it by more than 0.1 K (by 8 K at 40 degC and 200 hPa), and no real atmosphere
+is there. Look-ups outside a table's range return NaN, never an extrapolated value.
 """
 
 from __future__ import annotations
@@ -77,9 +86,14 @@ LN_R_COUNT = int(round((math.log(0.6) - LN_R_FIRST) / LN_R_STEP)) + 1
 LN_THETA_M_FIRST = math.log(150.0)
 LN_THETA_M_STEP = 0.01
 LN_THETA_M_COUNT = int(round((math.log(4000.0) - LN_THETA_M_FIRST) / LN_THETA_M_STEP)) + 1
+LN_P_LAST = LN_P_TOP + (LN_P_COUNT - 1) * LN_P_STEP
+LN_THETA_E_LAST = LN_THETA_E_FIRST + (LN_THETA_E_COUNT - 1) * LN_THETA_E_STEP
+LN_R_LAST = LN_R_FIRST + (LN_R_COUNT - 1) * LN_R_STEP
+LN_THETA_M_LAST = LN_THETA_M_FIRST + (LN_THETA_M_COUNT - 1) * LN_THETA_M_STEP
 LN_REFERENCE_PRESSURE = math.log(REFERENCE_PRESSURE)
-SATURATION_LIMIT = 0.5
-"""Saturated quantities are undefined where e_s exceeds this fraction of the pressure."""
+SATURATION_LIMIT = 0.12
+"""Saturated quantities are not reported where e_s exceeds this fraction of the pressure
+(see the module docstring)."""
 DRY_START_TEMPERATURE = 110.0
 """Each pseudo-adiabat is started where its dry-adiabat temperature is this cold, K."""
 
@@ -225,13 +239,8 @@ def _fill_theta_e_table(label, theta_e):
             p_lcl, t_lcl = lcl_on_dry_adiabat(theta_m, REFERENCE_PRESSURE, r)
             if not math.isfinite(t_lcl):
                 theta_e[a, b] = math.nan
-            elif t_lcl < TEMPERATURE_FIRST + 2.0 * TEMPERATURE_STEP:
-                lv = latent_heat_vaporisation_scalar(t_lcl)
-                theta_e[a, b] = math.log(potential_temperature_scalar(t_lcl, p_lcl)) + (
-                    lv * r / (DRY_AIR_HEAT_CAPACITY * t_lcl)
-                )
             else:
-                theta_e[a, b] = ln_theta_es_scalar(t_lcl, p_lcl, label)
+                theta_e[a, b] = ln_theta_e_at_saturation(t_lcl, p_lcl, label)
 
 
 @functools.lru_cache(maxsize=1)
@@ -323,6 +332,24 @@ def label_stencil(ln_theta_e):
 
 
 @numba.njit(cache=True, nogil=True)
+def ln_theta_e_at_saturation(temperature, pressure, label):
+    """ln theta_e (K) of saturated air at (T in K, p in Pa), for a parcel at its LCL.
+
+    The label table where it is defined; where the air is colder than the table
+    (below 151 K, so that r_s < 1e-7 at any pressure in the table) the first-order
+    form theta exp(Lv r_s/(cpd T)), exact to better than 1e-5 K there. A nearly dry
+    parcel has its LCL there.
+    """
+    if temperature > 0.0 and temperature < TEMPERATURE_FIRST + 2.0 * TEMPERATURE_STEP:
+        r = saturation_mixing_ratio_scalar(temperature, pressure)
+        lv = latent_heat_vaporisation_scalar(temperature)
+        return math.log(potential_temperature_scalar(temperature, pressure)) + (
+            lv * r / (DRY_AIR_HEAT_CAPACITY * temperature)
+        )
+    return ln_theta_es_scalar(temperature, pressure, label)
+
+
+@numba.njit(cache=True, nogil=True)
 def ln_theta_es_scalar(temperature, pressure, label):
     """ln(theta_es / K) of saturated air at (T in K, p in Pa); NaN where undefined."""
     if not (temperature >= TEMPERATURE_FIRST and temperature <= 350.0 and pressure > 0.0):
@@ -337,7 +364,7 @@ def ln_theta_es_scalar(temperature, pressure, label):
         return math.log(potential_temperature_scalar(temperature, pressure)) + lv * r / (
             DRY_AIR_HEAT_CAPACITY * temperature
         )
-    if ln_p > LN_P_TOP + (LN_P_COUNT - 1) * LN_P_STEP:
+    if ln_p > LN_P_LAST:
         return math.nan
     j, v0, v1, v2, v3 = pressure_stencil(ln_p)
     i, w0, w1, w2, w3 = stencil(temperature, TEMPERATURE_FIRST, TEMPERATURE_STEP, TEMPERATURE_COUNT)
@@ -392,18 +419,50 @@ def ln_theta_e_from_all_logs(ln_t, ln_p, mixing_ratio, ln_r, theta_e_table):
         return ln_t + KAPPA * (LN_REFERENCE_PRESSURE - ln_p) + (
             latent_heat_vaporisation_scalar(t_lcl) * mixing_ratio / (DRY_AIR_HEAT_CAPACITY * t_lcl)
         )
+    if not (
+        ln_r <= LN_R_LAST
+        and ln_theta_m >= LN_THETA_M_FIRST
+        and ln_theta_m <= LN_THETA_M_LAST
+    ):
+        return math.nan  # outside the table: never extrapolate
     j, v0, v1, v2, v3 = stencil(ln_r, LN_R_FIRST, LN_R_STEP, LN_R_COUNT)
     i, w0, w1, w2, w3 = stencil(ln_theta_m, LN_THETA_M_FIRST, LN_THETA_M_STEP, LN_THETA_M_COUNT)
     return bicubic(theta_e_table, j, v0, v1, v2, v3, i, w0, w1, w2, w3)
 
 
+@numba.njit(cache=True, nogil=True, inline="always")
+def capped_ln_theta_e(ln_theta_e, ln_theta_es, temperature, pressure, mixing_ratio):
+    """theta_e of supersaturated air is theta_es: the excess vapour is condensate.
+
+    theta_e grows with the mixing ratio at fixed (T, p) and equals theta_es at
+    saturation, so min(theta_e, theta_es) is theta_e below saturation and theta_es
+    above it (the lifted parcel also drops the excess: its LCL is its origin). Where
+    the theta_e table has no value (the dry adiabat of strongly supersaturated air
+    meets saturation beyond the tables), the vapour pressure is compared with e_s.
+    Arguments: ln theta_e and ln theta_es (K), T (K), p (Pa), r (kg/kg).
+    """
+    if ln_theta_es < ln_theta_e:
+        return ln_theta_es
+    if math.isnan(ln_theta_e) and math.isfinite(ln_theta_es):
+        vapour_pressure = pressure * mixing_ratio / (EPSILON + mixing_ratio)
+        if vapour_pressure >= saturation_vapour_pressure_scalar(temperature):
+            return ln_theta_es
+    return ln_theta_e
+
+
 @numba.njit(cache=True, nogil=True)
 def parcel_state_scalar(ln_theta_e, pressure, parcel):
     """Temperature and virtual temperature (K) on the pseudo-adiabat ln theta_e at p (Pa)."""
+    if not (
+        pressure > 0.0 and ln_theta_e >= LN_THETA_E_FIRST and ln_theta_e <= LN_THETA_E_LAST
+    ):
+        return math.nan, math.nan
     ln_p = math.log(pressure)
     if ln_p < LN_P_TOP:
         t = math.exp(ln_theta_e) * (pressure / REFERENCE_PRESSURE) ** KAPPA
         return t, t
+    if ln_p > LN_P_LAST:
+        return math.nan, math.nan
     j, v0, v1, v2, v3 = pressure_stencil(ln_p)
     i, w0, w1, w2, w3 = label_stencil(ln_theta_e)
     return bicubic_pair(parcel, j, v0, v1, v2, v3, i, w0, w1, w2, w3)
@@ -414,9 +473,15 @@ def parcel_state_scalar(ln_theta_e, pressure, parcel):
 
 
 @numba.njit(cache=True, nogil=True)
-def _theta_e_arrays(t, p, r, theta_e_table, out):
+def _theta_e_arrays(t, p, r, theta_e_table, label, out):
     for n in range(t.size):
-        out[n] = math.exp(ln_theta_e_scalar(t[n], p[n], r[n], theta_e_table))
+        out[n] = math.exp(
+            capped_ln_theta_e(
+                ln_theta_e_scalar(t[n], p[n], r[n], theta_e_table),
+                ln_theta_es_scalar(t[n], p[n], label),
+                t[n], p[n], r[n],
+            )
+        )
 
 
 @numba.njit(cache=True, nogil=True)
@@ -455,12 +520,13 @@ def equivalent_potential_temperature(temperature, pressure, mixing_ratio):
     ndarray
         theta_e, K: the pseudo-adiabatic definition (see the module docstring),
         through the exact LCL and the tabulated pseudo-adiabat, read from the
-        theta_e table (see ``ln_theta_e_from_logs``).
+        theta_e table (see ``ln_theta_e_from_logs``). Supersaturated air (e > e_s)
+        is saturated air plus condensate: its theta_e is theta_es at (T, p).
     """
     tables = adiabat_tables()
     (t, p, r), shape, dtype = _flat_inputs(temperature, pressure, mixing_ratio)
     out = np.empty(t.size)
-    _theta_e_arrays(t, p, r, tables.theta_e, out)
+    _theta_e_arrays(t, p, r, tables.theta_e, tables.label, out)
     return out.reshape(shape).astype(dtype)[()]
 
 

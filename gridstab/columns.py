@@ -23,6 +23,8 @@ from gridstab.adiabats import (
     LN_P_TOP,
     LN_REFERENCE_PRESSURE,
     adiabat_tables,
+    capped_ln_theta_e,
+    ln_theta_e_at_saturation,
     ln_theta_e_from_all_logs,
     ln_theta_e_from_logs,
     ln_theta_es_scalar,
@@ -55,10 +57,6 @@ LN_P_BOTTOM = LN_P_TOP + (LN_P_COUNT - 1) * LN_P_STEP
 MIXING_RATIO_FLOOR = 1e-10
 """Mixing ratios below this (kg/kg), negative ones included, are raised to it."""
 
-SURFACE_GAP_LIMIT = 10000.0
-"""Pa. When the lowest valid level lies more than this above the surface (missing or
-masked data in between), the mixed-layer and most-unstable layers start at that level
-instead of at the surface."""
 
 INDEX_FIELDS = ("k_index", "total_totals", "showalter_index")
 """Classic indices from the 850, 700 and 500 hPa levels (George 1960; Miller 1972;
@@ -89,6 +87,14 @@ class ColumnOptions:
     most_unstable_depth_hpa: float = field(
         default=300.0,
         metadata={"doc": "depth above ground searched for the most-unstable parcel, hPa"},
+    )
+    largest_surface_gap_hpa: float = field(
+        default=50.0,
+        metadata={
+            "doc": "largest gap between the surface and the lowest valid level, hPa, that the"
+            " mixed-layer and most-unstable layers bridge (filled with the lowest level's"
+            " theta and mixing ratio); beyond it they start at the lowest valid level"
+        },
     )
     dry_neutral_band_k_per_km: float = field(
         default=0.3, metadata={"doc": "half-width of the dry-neutral band of lapse rates, K/km"}
@@ -124,6 +130,9 @@ class ColumnOptions:
             value = getattr(self, name)
             if not (isinstance(value, (int, float)) and math.isfinite(value) and value > 0):
                 raise ValueError(f"{name} must be a positive number, got {value!r}")
+        gap = self.largest_surface_gap_hpa
+        if not (isinstance(gap, (int, float)) and 0 <= gap <= 200):
+            raise ValueError(f"largest_surface_gap_hpa must be between 0 and 200 hPa, got {gap!r}")
         for name in ("dry_neutral_band_k_per_km", "moist_neutral_band_k_per_km"):
             value = getattr(self, name)
             if not (isinstance(value, (int, float)) and 0 <= value < 5):
@@ -240,14 +249,12 @@ def _state_at(target_ln_p, LNP, T, R, Z, count, label, theta_e_table):
     z = linear(LNP, Z, k, target_ln_p)
     ln_t = math.log(t)
     ln_theta = ln_t + KAPPA * (LN_REFERENCE_PRESSURE - target_ln_p)
-    return (
-        t,
-        math.exp(ln_theta),
-        ln_theta,
-        math.exp(ln_theta_e_from_logs(ln_t, target_ln_p, r, theta_e_table)),
-        math.exp(ln_theta_es_scalar(t, math.exp(target_ln_p), label)),
-        z,
+    ln_theta_es = ln_theta_es_scalar(t, math.exp(target_ln_p), label)
+    ln_theta_e = capped_ln_theta_e(
+        ln_theta_e_from_logs(ln_t, target_ln_p, r, theta_e_table), ln_theta_es, t,
+        math.exp(target_ln_p), r,
     )
+    return t, math.exp(ln_theta), ln_theta, math.exp(ln_theta_e), math.exp(ln_theta_es), z
 
 
 @numba.njit(cache=True, nogil=True)
@@ -280,7 +287,7 @@ def _classic_indices(LNP, T, R, count, parcel_table, label, index_out, c):
     if p_lcl <= 50000.0:
         parcel = t850 * math.exp(moist_kappa_scalar(r850) * (ln500 - ln850))
     else:
-        ln_theta_e = ln_theta_es_scalar(t_lcl, p_lcl, label)
+        ln_theta_e = ln_theta_e_at_saturation(t_lcl, p_lcl, label)
         parcel = parcel_state_scalar(ln_theta_e, 50000.0, parcel_table)[0]
     index_out[c, 2] = t500 - parcel
 
@@ -290,7 +297,7 @@ def _diagnose(
     pressure, ln_p_all, temperature, ln_t_all, mixing_ratio, ln_r_all, theta_all, tv_all,
     height, has_height, surface_pressure, has_surface, surface_height, has_surface_height,
     surface_t, surface_r, has_surface_air,
-    reversible, virtual, ml_depth, mu_depth, dry_band, moist_band,
+    reversible, virtual, ml_depth, mu_depth, largest_gap, dry_band, moist_band,
     low_depth, upper_bottom, upper_top, li_pressure, want_levels,
     parcel_table, label, theta_e_table,
     parcels_out, thick_out, index_out, level_out, layer_out, layer_flags,
@@ -329,8 +336,6 @@ def _diagnose(
             continue
         for i in range(n):
             LTH[i] = LNT[i] + KAPPA * (LN_REFERENCE_PRESSURE - LNP[i])
-            LTHE[i] = ln_theta_e_from_all_logs(LNT[i], LNP[i], R[i], LNR[i], theta_e_table)
-            THE[i] = math.exp(LTHE[i])
             # the label table shares its pressure rows with the parcel table
             j, v0, v1, v2, v3 = pressure_stencil_or_none(LNP[i])
             LEVEL_STENCIL[i] = j
@@ -339,9 +344,15 @@ def _diagnose(
             WEIGHTS[0, i, 2] = v2
             WEIGHTS[0, i, 3] = v3
             if j >= 0 and LNP[i] <= LN_P_BOTTOM:
-                THES[i] = math.exp(ln_theta_es_with_stencil(T[i], j, v0, v1, v2, v3, label))
+                ln_theta_es = ln_theta_es_with_stencil(T[i], j, v0, v1, v2, v3, label)
             else:
-                THES[i] = math.exp(ln_theta_es_scalar(T[i], P[i], label))
+                ln_theta_es = ln_theta_es_scalar(T[i], P[i], label)
+            THES[i] = math.exp(ln_theta_es)
+            LTHE[i] = capped_ln_theta_e(
+                ln_theta_e_from_all_logs(LNT[i], LNP[i], R[i], LNR[i], theta_e_table),
+                ln_theta_es, T[i], P[i], R[i],
+            )
+            THE[i] = math.exp(LTHE[i])
             if i < n - 1:
                 j, v0, v1, v2, v3 = pressure_stencil_or_none(0.5 * (LNP[i] + LNP[i + 1]))
                 MID_STENCIL[i] = j
@@ -427,16 +438,17 @@ def _diagnose(
         if P[0] >= 85000.0 and P[n - 1] <= 50000.0:
             _classic_indices(LNP, T, R, n, parcel_table, label, index_out, c)
         # parcels
-        # the parcels' layers start at the surface, unless missing data leave the lowest
-        # valid level far above it: then they start at that level
-        bottom = ps if (ground_known and P[0] < ps <= P[0] + SURFACE_GAP_LIMIT) else P[0]
+        # the parcels' layers start at the surface (the gap below the lowest valid level
+        # filled with its theta and r), unless the gap is wider than the largest gap
+        # filled: then they start at the lowest valid level
+        bottom = ps if (ground_known and P[0] < ps <= P[0] + largest_gap) else P[0]
         for which in range(3):
             if which == 0:
                 p0, t0, r0 = P[0], T[0], R[0]
             elif which == 1:
                 p0, t0, r0 = mixed_layer_parcel(LNP, P, TH, R, n, bottom, ml_depth)
             else:
-                level = most_unstable_level(P, LTHE, n, bottom, mu_depth)
+                level = most_unstable_level(P, THE, n, bottom, mu_depth)
                 if level < 0:
                     continue
                 p0, t0, r0 = P[level], T[level], R[level]
@@ -558,6 +570,7 @@ def diagnose_columns(
             ts, rs, has_ts and has_rs,
             options.ascent == "reversible", bool(options.virtual_temperature_correction),
             options.mixed_layer_depth_hpa * 100.0, options.most_unstable_depth_hpa * 100.0,
+            options.largest_surface_gap_hpa * 100.0,
             options.dry_neutral_band_k_per_km / 1000.0,
             options.moist_neutral_band_k_per_km / 1000.0,
             float(options.low_layer_depth_m), options.upper_layer_bottom_hpa * 100.0,

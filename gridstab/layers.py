@@ -12,9 +12,18 @@ For a layer between two levels, with T the layer-mean temperature,
   = g T/(cpd Tv) is the lapse rate of a layer of constant theta (slightly below g/cpd
   in moist air, because density depends on virtual temperature);
 * departure from the moist adiabat, Gamma_m' - Gamma = T d(ln theta_es)/dz / A, with
-  A = d(ln theta_es)/d(ln T) at constant p, approximated by 1 + X (Lv/(Rv T) - 1),
+  A = d(ln theta_es)/d(ln T) at constant p, approximated by 1 + X (T d(ln e_s)/dT - 1),
   X = theta_es/theta - 1 ~ Lv r_s/(cpd T) (from theta_es ~ theta exp(Lv r_s/(cpd T))),
-  and d(ln theta_es) by d(theta_es)/theta_es with the layer-mean theta_es.
+  d(ln e_s)/dT that of gridstab's saturation curve, and d(ln theta_es) by
+  d(theta_es)/theta_es with the layer-mean theta_es. The sign of the departure is that
+  of d(theta_es)/dz; A only scales the moist-neutral band.
+* where theta_es is not defined at an end of the layer (warm air at very low pressure,
+  above a few hPa, see ``gridstab.adiabats.SATURATION_LIMIT``), the departure from the
+  moist adiabat is Gamma_m - Gamma with the saturated lapse rate Gamma_m at the layer's
+  mean temperature and pressure, where saturation is possible (e_s < p); where it is
+  not, the layer is classed against the dry adiabat alone: an inversion or any lapse
+  rate below the dry adiabat's is absolutely stable. A layer with a lapse rate is
+  never left unclassified.
 
 With neutral bands b_d and b_m (K/m):
 
@@ -26,7 +35,7 @@ code  class                    condition
 2     conditionally unstable   Gamma_m' + b_m < Gamma < Gamma_d' - b_d
 1     moist neutral            |Gamma - Gamma_m'| <= b_m
 0     absolutely stable        Gamma < Gamma_m' - b_m
--1    missing                  any input missing, or theta_es undefined
+-1    missing                  temperature or height missing
 ====  =======================  ==========================================
 
 The differences are taken between the layer's end values, so for a thick layer the
@@ -40,8 +49,9 @@ import math
 
 import numba
 
-from gridstab.constants import WATER_VAPOUR_GAS_CONSTANT
-from gridstab.thermo import latent_heat_vaporisation_scalar
+from gridstab.constants import KAPPA, REFERENCE_PRESSURE
+from gridstab.moisture import ln_saturation_vapour_pressure_scalar
+from gridstab.thermo import saturated_lapse_rate_scalar
 
 ABSOLUTELY_STABLE = 0
 MOIST_NEUTRAL = 1
@@ -78,7 +88,7 @@ def classify(dry_departure, moist_departure, dry_band, moist_band):
     if dry_departure <= dry_band:
         return DRY_NEUTRAL
     if not math.isfinite(moist_departure):
-        return MISSING_CLASS
+        return ABSOLUTELY_STABLE  # saturation impossible: stable against the dry adiabat
     if moist_departure < -moist_band:
         return CONDITIONALLY_UNSTABLE
     if moist_departure <= moist_band:
@@ -124,12 +134,19 @@ def layer_diagnostics(
     t_mean = 0.5 * (t_bottom + t_top)
     dry_departure = t_mean * (ln_theta_top - ln_theta_bottom) / dz
     # ln(theta_es/theta) ~ Lv r_s/(cpd T), and theta_es ~ theta_es_bottom + dthetaes dz
-    theta_es_mean = 0.5 * (theta_es_bottom + theta_es_top)
-    theta_mean = 0.5 * (theta_bottom + theta_top)
-    excess = theta_es_mean / theta_mean - 1.0
-    lv = latent_heat_vaporisation_scalar(t_mean)
-    sensitivity = 1.0 + excess * (lv / (WATER_VAPOUR_GAS_CONSTANT * t_mean) - 1.0)
-    moist_departure = t_mean * dthetaes / theta_es_mean / sensitivity
+    if math.isfinite(dthetaes):
+        theta_es_mean = 0.5 * (theta_es_bottom + theta_es_top)
+        theta_mean = 0.5 * (theta_bottom + theta_top)
+        excess = theta_es_mean / theta_mean - 1.0
+        slope = ln_saturation_vapour_pressure_scalar(t_mean)[1]
+        sensitivity = 1.0 + excess * (t_mean * slope - 1.0)
+        moist_departure = t_mean * dthetaes / theta_es_mean / sensitivity
+    else:
+        # theta_es undefined: the saturated lapse rate itself at the layer's middle
+        p_mean = REFERENCE_PRESSURE * (t_mean / (0.5 * (theta_bottom + theta_top))) ** (
+            1.0 / KAPPA
+        )
+        moist_departure = saturated_lapse_rate_scalar(t_mean, p_mean) - lapse_rate
     code = classify(dry_departure, moist_departure, dry_band, moist_band)
     if math.isfinite(dthetae):
         instability = 1.0 if dthetae < 0.0 else 0.0

@@ -38,7 +38,7 @@ from gridstab.adiabats import (
     LN_THETA_E_COUNT,
     LN_THETA_E_FIRST,
     LN_THETA_E_STEP,
-    ln_theta_es_scalar,
+    ln_theta_e_at_saturation,
     pressure_stencil,
 )
 from gridstab.constants import (
@@ -121,16 +121,26 @@ def mixed_layer_parcel(ln_p, pressure, theta, mixing_ratio, count, bottom_pressu
     return bottom_pressure, temperature, mean_r
 
 
+MOST_UNSTABLE_TIE_KELVIN = 0.01
+"""theta_e values within this many kelvin count as equal in the most-unstable search,
+which then takes the lowest of them (table noise must not lift the parcel)."""
+
+
 @numba.njit(cache=True, nogil=True)
-def most_unstable_level(pressure, ln_theta_e, count, bottom_pressure, depth):
-    """Index of the level of highest theta_e within ``depth`` Pa above the bottom; -1 if none."""
+def most_unstable_level(pressure, theta_e, count, bottom_pressure, depth):
+    """Index of the level of highest theta_e (K) within ``depth`` Pa above the bottom.
+
+    A level higher up wins only if its theta_e exceeds the best below it by more than
+    ``MOST_UNSTABLE_TIE_KELVIN``, so ties go to the lowest level. -1 if no level has a
+    theta_e.
+    """
     best = -1
     best_value = -math.inf
     for k in range(count):
         if pressure[k] < bottom_pressure - depth:
             break
-        if ln_theta_e[k] > best_value:
-            best_value = ln_theta_e[k]
+        if theta_e[k] > best_value + MOST_UNSTABLE_TIE_KELVIN:
+            best_value = theta_e[k]
             best = k
     return best
 
@@ -327,7 +337,7 @@ def lift_parcel(
     out[4] = lcl_t
     if lcl_ln_p >= ln_p[count - 1]:
         out[3] = height_at(ln_p, height, virtual_temperature, count, lcl_ln_p)
-    parcel_ln_theta_e = ln_theta_es_scalar(lcl_t, lcl_p, label)
+    parcel_ln_theta_e = ln_theta_e_at_saturation(lcl_t, lcl_p, label)
     if not math.isfinite(parcel_ln_theta_e):
         return
     kappa = moist_kappa_scalar(origin_mixing_ratio)

@@ -22,7 +22,9 @@ Garbage and bad values
   pressure is known (counted in ``gridstab_below_surface_count``);
 * mixing ratios below ``HUMIDITY_FLOOR`` (negative or zero humidity, common in model
   output) are raised to it; negative input humidities are counted in
-  ``gridstab_negative_humidity_count``; slight supersaturation is kept;
+  ``gridstab_negative_humidity_count``; slight supersaturation is kept and counted in
+  ``gridstab_supersaturated_count`` (the physics treats it as saturated air plus
+  condensate);
 * physically impossible values raise :class:`~gridstab.errors.InputError`: temperatures
   outside 150-350 K, humidity far above saturation (relative humidity above 150 %),
   non-positive pressure, and pressure values that contradict their units.
@@ -1063,6 +1065,10 @@ def normalise_input(
         r = r.where(~fill, HUMIDITY_FLOOR)
     run.lazy["floored"] = (r < HUMIDITY_FLOOR).sum().data
     r = r.where(~(r < HUMIDITY_FLOOR), HUMIDITY_FLOOR)
+    # slightly supersaturated values are kept and counted; the physics treats them as
+    # saturated air plus condensate (theta_e = theta_es there)
+    saturation = _elementwise(moisture.saturation_mixing_ratio, temperature, p, like=temperature)
+    run.lazy["supersaturated_levels"] = (r > saturation).sum().data
 
     # ---- one pass over the data: checks and counters
     stats = _scan(run) if s.check_values else {}
@@ -1473,6 +1479,7 @@ def _check(
         if kind != "dew_point" and stats
         else (0 if stats else -1),
         "floored_humidity_count": count("floored"),
+        "supersaturated_count": count("supersaturated_levels"),
         "below_surface_count": count("below_surface")
         if "below_surface" in run.lazy
         else (0 if stats else -1),
@@ -1494,6 +1501,11 @@ def _recognition_text(
             f"humidity: {counts['negative_humidity_count']} negative values; "
             f"{counts['floored_humidity_count']} mixing ratios below {HUMIDITY_FLOOR:g} kg/kg "
             f"(negative or zero) raised to {HUMIDITY_FLOOR:g} kg/kg"
+        )
+    if counts["supersaturated_count"] > 0:
+        lines.append(
+            f"humidity: {counts['supersaturated_count']} supersaturated values (e > e_s over "
+            "liquid water) kept; treated as saturated air plus condensate (theta_e = theta_es)"
         )
     if counts["dry_filled_count"] > 0:
         lines.append(
@@ -1639,6 +1651,7 @@ def describe_input(ds: xr.Dataset) -> str:
         ("masked_value_count", "unmasked fill values set missing"),
         ("negative_humidity_count", "negative humidities"),
         ("floored_humidity_count", f"mixing ratios raised to {HUMIDITY_FLOOR:g} kg/kg"),
+        ("supersaturated_count", "supersaturated values (treated as saturated)"),
         ("below_surface_count", "values below the surface masked"),
         ("dry_filled_count", "values above the top humidity level treated as dry"),
         ("height_masked_count", "non-increasing geopotential heights set missing"),

@@ -11,8 +11,11 @@ Conventions (see the project's physics notes):
   moist air, kappa_m = (Rd + r Rv)/(cpd + r cpv), per unit mass of dry air.
 * The saturated lapse rate is the pseudo-adiabatic one of the AMS Glossary of
   Meteorology (2nd ed., 2000, "pseudoadiabatic lapse rate"; quoted from memory):
-  Gamma_m = g (1 + r)(1 + Lv r/(Rd T)) / (cpd + r cpv + Lv^2 r (eps + r)/(Rd T^2)),
-  with r the saturation mixing ratio and Lv varying linearly with T (Kirchhoff).
+  Gamma_m = g (1 + r)(1 + Lv r/(Rd T)) / (cpd + r cpv + Lv dr/dT),
+  with r the saturation mixing ratio, Lv varying linearly with T (Kirchhoff) and
+  dr/dT = r (1 + r/eps) d(ln e_s)/dT from the derivative of gridstab's own saturation
+  curve (the Glossary's Clausius-Clapeyron form Lv^2 r (eps + r)/(Rd T^2) would put the
+  slope of another curve, 0.06-0.6 % off, into every adiabat).
 """
 
 from __future__ import annotations
@@ -39,7 +42,6 @@ from gridstab.constants import (
 )
 from gridstab.moisture import (
     ln_saturation_vapour_pressure_scalar,
-    saturation_mixing_ratio_scalar,
     vapour_pressure_from_mixing_ratio_scalar,
 )
 
@@ -81,31 +83,43 @@ def moist_kappa_scalar(mixing_ratio):
 
 
 @numba.njit(cache=True, nogil=True)
-def pseudoadiabat_slope_scalar(temperature, pressure):
-    """dT/d(ln p) along the saturated pseudo-adiabat, K (per unit ln p); NaN if e_s >= p."""
-    r = saturation_mixing_ratio_scalar(temperature, pressure)
+def _saturated_state(temperature, pressure):
+    """Saturation mixing ratio r_s (kg/kg), Lv (J/kg) and the pseudo-adiabat's heat
+    capacity term cpd + r_s cpv + Lv dr_s/dT (J kg-1 K-1) at (T in K, p in Pa).
+
+    dr_s/dT at constant p is r_s (1 + r_s/eps) d(ln e_s)/dT, with d(ln e_s)/dT the
+    derivative of the saturation curve that gridstab uses everywhere (not a
+    Clausius-Clapeyron stand-in). NaN where e_s >= p.
+    """
+    ln_es, dln_es = ln_saturation_vapour_pressure_scalar(temperature)
+    es = math.exp(ln_es)
+    if es >= pressure:
+        return math.nan, math.nan, math.nan
+    r = EPSILON * es / (pressure - es)
     lv = latent_heat_vaporisation_scalar(temperature)
-    numerator = (1.0 + r / EPSILON) * (DRY_AIR_GAS_CONSTANT * temperature + lv * r)
-    denominator = (
-        DRY_AIR_HEAT_CAPACITY
-        + r * VAPOUR_HEAT_CAPACITY
-        + lv * lv * r * (EPSILON + r) / (DRY_AIR_GAS_CONSTANT * temperature * temperature)
+    capacity = (
+        DRY_AIR_HEAT_CAPACITY + r * VAPOUR_HEAT_CAPACITY + lv * r * (1.0 + r / EPSILON) * dln_es
     )
-    return numerator / denominator
+    return r, lv, capacity
+
+
+@numba.njit(cache=True, nogil=True)
+def pseudoadiabat_slope_scalar(temperature, pressure):
+    """dT/d(ln p) along the saturated pseudo-adiabat, K (per unit ln p); NaN if e_s >= p.
+
+    First law per unit mass of dry air with the condensate removed as it forms:
+    (cpd + r cpv) dT + Lv dr = Rd T (1 + r/eps) d(ln p), r = r_s(T, p).
+    """
+    r, lv, capacity = _saturated_state(temperature, pressure)
+    return (1.0 + r / EPSILON) * (DRY_AIR_GAS_CONSTANT * temperature + lv * r) / capacity
 
 
 @numba.njit(cache=True, nogil=True)
 def saturated_lapse_rate_scalar(temperature, pressure):
-    """Pseudo-adiabatic lapse rate -dT/dz, K/m (AMS Glossary form)."""
-    r = saturation_mixing_ratio_scalar(temperature, pressure)
-    lv = latent_heat_vaporisation_scalar(temperature)
+    """Pseudo-adiabatic lapse rate -dT/dz, K/m (AMS Glossary form, exact d e_s/dT)."""
+    r, lv, capacity = _saturated_state(temperature, pressure)
     numerator = STANDARD_GRAVITY * (1.0 + r) * (1.0 + lv * r / (DRY_AIR_GAS_CONSTANT * temperature))
-    denominator = (
-        DRY_AIR_HEAT_CAPACITY
-        + r * VAPOUR_HEAT_CAPACITY
-        + lv * lv * r * (EPSILON + r) / (DRY_AIR_GAS_CONSTANT * temperature * temperature)
-    )
-    return numerator / denominator
+    return numerator / capacity
 
 
 @numba.njit(cache=True, nogil=True)

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 
 from gridstab import moisture
@@ -42,3 +44,40 @@ def layered_sounding(rng, levels=STANDARD_LEVELS, *, inversion=True):
     r = moisture.mixing_ratio_from_relative_humidity(rh, t, p)
     r = np.where(p < 15000.0, np.minimum(r, 5e-6), r)
     return p, t, r
+
+
+@functools.lru_cache(maxsize=2)
+def standard_soundings(levels=tuple(STANDARD_LEVELS)):
+    """The standard test soundings of the accuracy goals: name -> (p, T, r), bottom-up.
+
+    * ``wk14``, ``wk16``: the Weisman and Klemp (1982, Mon. Wea. Rev. 110, 504-520)
+      analytic sounding with 14 and 16 g/kg in the boundary layer;
+    * ``capped``: ``wk14`` with a capping inversion of 4 K centred at 850 hPa (invented);
+    * ``elevated``: ``wk14`` over a cold, stable layer 120 hPa deep (10 K colder at the
+      ground, drier): the most unstable air lies above it (invented);
+    * ``dry_mixed``: a deep dry-adiabatic mixed layer (theta 314 K, 7 g/kg) up to
+      620 hPa under a conditionally unstable free troposphere (invented).
+    """
+    import reference  # tests/reference.py, imported lazily: it is slow to set up
+
+    levels = np.asarray(levels, float)
+    out = {}
+    for name, r_bl in (("wk14", 0.014), ("wk16", 0.016)):
+        p, t, r, _ = reference.weisman_klemp_sounding(levels, surface_mixing_ratio=r_bl)
+        out[name] = (p, t, r)
+    p, t, r = out["wk14"]
+    bump = np.clip(1.0 - np.abs(np.log(p / 85000.0)) / np.log(90000.0 / 85000.0), 0.0, 1.0)
+    out["capped"] = (p, t + 4.0 * bump, r)
+    depth = np.clip((p - 88000.0) / 12000.0, 0.0, 1.0)
+    t_cold = t - 10.0 * depth
+    r_cold = np.minimum(r, 0.6 * np.array([reference.rsat(a, b) for a, b in zip(t_cold, p)]))
+    out["elevated"] = (p, t_cold, np.where(depth > 0, r_cold, r))
+    z = -7400.0 * np.log(p / 1e5)
+    theta = np.where(p >= 62000.0, 314.0, 314.0 + 3.5e-3 * (z - (-7400.0 * np.log(0.62))))
+    t_dry = theta * (p / 1e5) ** reference.KAPPA
+    rh = np.clip(0.55 * np.exp(-(z - 3500.0) / 6000.0), 0.03, 0.9)
+    r_free = rh * np.array([reference.rsat(a, b) for a, b in zip(t_dry, p)])
+    r_dry = np.where(p >= 62000.0, 0.007, np.minimum(r_free, 0.007))
+    r_dry = np.where(p < 15000.0, np.minimum(r_dry, 5e-6), r_dry)
+    out["dry_mixed"] = (p, t_dry, r_dry)
+    return out

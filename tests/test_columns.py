@@ -8,6 +8,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from soundings import layered_sounding
 
+from gridstab import moisture
 from gridstab.columns import OUTPUTS, diagnose_columns
 
 SETTINGS = settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
@@ -163,3 +164,21 @@ def test_parcels_start_at_the_lowest_level_when_data_are_missing_far_above_groun
     assert out["parcel_pressure_mu"][0] <= 70000.0
     assert out["parcel_pressure_ml"][0] == 70000.0
     assert np.isfinite(out["cape_ml"][0])
+
+
+def test_supersaturated_levels_have_the_theta_e_of_saturated_air():
+    # Supersaturated model air is saturated air plus condensate (project physics notes):
+    # the level's theta_e is its theta_es, so the most-unstable choice and the
+    # potential-instability flag agree with the lifted parcel, which drops the excess.
+    p, t, r = batch(7, count=1)
+    saturated = moisture.saturation_mixing_ratio(t[0, :4], p[0, :4])
+    wet = r.copy()
+    wet[0, :4] = 1.11 * saturated  # 11 % supersaturated, as seen in real model output
+    at_saturation = r.copy()
+    at_saturation[0, :4] = saturated
+    out = diagnose_columns(p, t, wet)
+    np.testing.assert_allclose(out["theta_e"][0, :4], out["theta_es"][0, :4], rtol=1e-12)
+    ref = diagnose_columns(p, t, at_saturation)
+    np.testing.assert_allclose(out["theta_e"][0, :4], ref["theta_e"][0, :4], atol=0.01)
+    assert out["parcel_pressure_mu"][0] == ref["parcel_pressure_mu"][0]
+    assert out["cape_mu"][0] == pytest.approx(ref["cape_mu"][0], rel=0.01)

@@ -119,3 +119,38 @@ def test_thick_layer_missing_where_850_is_below_ground():
     assert out["stability_class_850_500"][0] == -1
     assert np.isnan(out["lapse_rate_850_500"][0])
     assert out["stability_class_low3km"][0] != -1
+
+
+def test_layers_above_the_theta_es_range_are_classified():
+    # Up to 1 hPa, a warm stratosphere (temperature rising with height: an inversion,
+    # absolutely stable by definition) where e_s exceeds the reporting limit: every layer
+    # with a lapse rate has a class, none is left missing.
+    p = np.array([100000, 85000, 70000, 50000, 30000, 20000, 10000, 5000, 2000, 1000, 500,
+                  300, 200, 100], float)
+    z = -7000.0 * np.log(p / 1e5)
+    t = np.where(z < 11000, 288.0 - 6.5e-3 * z, 216.0 + 1.5e-3 * np.maximum(z - 20000, 0))
+    r = np.where(p > 30000, 0.004 * (p / 1e5) ** 3, 3e-6)
+    cls, out = classes(p, t, r)
+    assert np.all(cls >= 0), cls
+    top = p[1:] <= 2000.0  # layers whose top is at or above 20 hPa: all inversions
+    assert np.all(cls[top] == ABSOLUTELY_STABLE)
+    assert np.isnan(out["theta_es"][0][-1])  # theta_es itself is not reported at 1 hPa
+
+
+def test_warm_layer_beyond_the_theta_es_range_uses_the_saturated_lapse_rate():
+    # 50 degC at 1000 hPa is beyond theta_es's reporting limit; a layer there whose lapse
+    # rate lies between the saturated one (about 3 K/km, AMS Glossary form through the
+    # reference's pseudo-adiabat) and the dry one is conditionally unstable, one below
+    # it absolutely stable.
+    p = np.array([100000.0, 99000.0])
+    r = np.array([0.01, 0.01])
+    rs = reference.rsat(323.15, 99500.0)
+    dlnp_dz = -reference.G * (1 + rs) / (reference.RD * 323.15 * (1 + rs / reference.EPS))
+    gamma_m = -reference.pseudo_slope(np.log(99500.0), [323.15])[0] * dlnp_dz
+    dz = reference.RD * 323.0 / reference.G * np.log(100000.0 / 99000.0)
+    for lapse, expected in ((gamma_m + 3e-3, CONDITIONALLY_UNSTABLE),
+                            (gamma_m - 1.5e-3, ABSOLUTELY_STABLE)):
+        t = np.array([323.6, 323.6 - lapse * dz])
+        cls, out = classes(p, t, r)
+        assert np.isnan(out["theta_es"][0][0])
+        assert cls[0] == expected, (lapse, cls)

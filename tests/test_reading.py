@@ -863,3 +863,23 @@ def test_eager_and_chunked_input_agree():
     chunked = normalise_input(src.chunk({"plev": 1, "lat": 1}))
     assert len(chunked["air_temperature"].data.chunks[1]) == 1  # the level dim is one chunk
     xr.testing.assert_identical(eager, chunked.compute())
+
+
+def test_supersaturated_values_are_kept_and_counted(tmp_path):
+    # Slight supersaturation in model output is kept (the physics treats it as
+    # saturated air) and counted. Reference count: e = p r/(eps + r) against IAPWS-95
+    # saturation through `iapws` (es_iapws above), by hand.
+    src = _plev_dataset()
+    q = src["hus"].values
+    t = src["ta"].values
+    levels = src["plev"].values
+    # 5 % supersaturation at 1000 hPa in two columns
+    for j in (0, 1):
+        e_s = es_iapws(float(t[0, 0, 0, j]))
+        r = 1.05 * mixing_ratio_by_hand(e_s, levels[0])
+        q[0, 0, 0, j] = r / (1 + r)
+    path = _write(src, tmp_path / "supersaturated.nc")
+    ds = open_model_output(path)
+    assert ds.attrs["gridstab_supersaturated_count"] == 2
+    loaded = ds["humidity_mixing_ratio"].values
+    assert loaded[0, 0, 0, 0] == pytest.approx(q[0, 0, 0, 0] / (1 - q[0, 0, 0, 0]))

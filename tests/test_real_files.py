@@ -59,6 +59,29 @@ def test_real_file_gives_sane_results(name, real_data_dir):
     assert np.all(np.isnan(li) | ((li > -20) & (li < 60)))
 
 
+@pytest.mark.parametrize("name", sorted(FILES))
+def test_real_file_physics_is_self_consistent(name, real_data_dir):
+    # Real model output is slightly supersaturated, floored and missing in places; the
+    # physics notes fix what must hold there (definitions, no outside value needed):
+    # theta_e never exceeds theta_es (supersaturated air counts as saturated); a parcel
+    # with an LCL has a CAPE (0 when nearly dry, never NaN); every layer with a lapse
+    # rate has a stability class.
+    from gridstab.engine import EngineSettings
+
+    ds = open_model_output(real_data_dir / name, settings=InputSettings(**FILES[name]))
+    out = diagnose(ds, settings=EngineSettings(per_level_fields=True)).compute()
+    theta_e, theta_es = out["theta_e"].values, out["theta_es"].values
+    both = np.isfinite(theta_e) & np.isfinite(theta_es)
+    assert np.all(theta_e[both] <= theta_es[both] + 0.02), np.max(theta_e[both] - theta_es[both])
+    for parcel in ("sb", "ml", "mu"):
+        has_lcl = np.isfinite(out[f"lcl_pressure_{parcel}"].values)
+        cape = out[f"cape_{parcel}"].values
+        assert np.all(np.isfinite(cape[has_lcl])), parcel
+    lapse = out["layer_lapse_rate"].values
+    classes = out["layer_stability_class"].values
+    assert np.all(classes[np.isfinite(lapse)] >= 0)
+
+
 def test_real_projected_file_through_the_command_line(real_data_dir, tmp_path):
     # HIRLAM: polar stereographic grid, potential temperature and RH, no surface pressure
     path = real_data_dir / "hirlam12_plev15_theta_rh.nc"

@@ -407,7 +407,14 @@ def test_saturated_columns_follow_a_pseudo_adiabat(plev):
 
 @pytest.mark.slow
 def test_script_is_deterministic(tmp_path):
-    """Two runs of the script give identical data, equal to the files kept in the repo."""
+    """Two runs of the script give identical data; the kept files agree within rounding.
+
+    Bit-identity holds between two runs on one machine. Across machines the last bit
+    of a float may differ (numpy's transcendental functions may use other SIMD code
+    paths on another processor; the hybrid coefficients differed by 1 ulp), so the
+    files kept in the repository are compared with a tight tolerance (below), with
+    identical metadata.
+    """
     for name in ("a", "b"):
         subprocess.run(
             [sys.executable, str(SCRIPT), str(tmp_path / name)], check=True, capture_output=True
@@ -419,4 +426,27 @@ def test_script_is_deterministic(tmp_path):
             xr.open_dataset(SAMPLES / filename) as kept,
         ):
             xr.testing.assert_identical(a, b)
-            xr.testing.assert_identical(a, kept)
+            _assert_same_attrs(a.attrs, kept.attrs, "global")
+            assert set(a.variables) == set(kept.variables)
+            for name in a.variables:
+                assert a[name].dims == kept[name].dims, name
+                _assert_same_attrs(a[name].attrs, kept[name].attrs, name)
+                assert a[name].dtype == kept[name].dtype, name
+                _assert_close(a[name].values, kept[name].values, name)
+
+
+def _assert_close(ours, kept, name):
+    ours, kept = np.asarray(ours), np.asarray(kept)
+    if ours.dtype.kind == "f":
+        # 1e-12 relative for float64 (values pass through exp/log, whose last bits may
+        # differ between processors); 2 ulps for float32
+        rtol = max(1e-12, 2 * float(np.finfo(ours.dtype).eps))
+        np.testing.assert_allclose(ours, kept, rtol=rtol, atol=0, err_msg=name)
+    else:
+        np.testing.assert_array_equal(ours, kept, name)
+
+
+def _assert_same_attrs(ours, kept, name):
+    assert ours.keys() == kept.keys(), name
+    for key in ours:
+        _assert_close(ours[key], kept[key], f"{name}: {key}")
