@@ -48,7 +48,6 @@ is there. Look-ups outside a table's range return NaN, never an extrapolated val
 
 from __future__ import annotations
 
-import functools
 import math
 from typing import NamedTuple
 
@@ -243,18 +242,52 @@ def _fill_theta_e_table(label, theta_e):
                 theta_e[a, b] = ln_theta_e_at_saturation(t_lcl, p_lcl, label)
 
 
-@functools.lru_cache(maxsize=1)
-def adiabat_tables() -> AdiabatTables:
-    """Build (once per process) and return the pseudo-adiabat lookup tables."""
-    parcel = np.empty((LN_P_COUNT, LN_THETA_E_COUNT, 2))
+TABLE_SHAPES = {
+    "parcel": (LN_P_COUNT, LN_THETA_E_COUNT, 2),
+    "label": (LN_P_COUNT, TEMPERATURE_COUNT),
+    "theta_e": (LN_R_COUNT, LN_THETA_M_COUNT),
+}
+"""Shape of each table, by field name of :class:`AdiabatTables`."""
+
+
+def build_adiabat_tables() -> AdiabatTables:
+    """Integrate the pseudo-adiabats and build the lookup tables (about a second)."""
+    parcel = np.empty(TABLE_SHAPES["parcel"])
     _integrate_family(parcel)
-    label = np.empty((LN_P_COUNT, TEMPERATURE_COUNT))
+    label = np.empty(TABLE_SHAPES["label"])
     _invert_family(parcel, label)
-    theta_e = np.empty((LN_R_COUNT, LN_THETA_M_COUNT))
+    theta_e = np.empty(TABLE_SHAPES["theta_e"])
     _fill_theta_e_table(label, theta_e)
     for table in (parcel, label, theta_e):
         table.setflags(write=False)
     return AdiabatTables(parcel, label, theta_e)
+
+
+_PROCESS_TABLES: list[AdiabatTables] = []
+
+
+def install_adiabat_tables(tables: AdiabatTables) -> None:
+    """Use ``tables`` (for example read back from a cache) as this process's tables.
+
+    Raises ValueError when a table has the wrong shape or type. Tables already in use
+    in the process are kept.
+    """
+    for name, shape in TABLE_SHAPES.items():
+        table = getattr(tables, name)
+        if table.shape != shape or table.dtype != np.float64:
+            raise ValueError(f"adiabat table {name!r} has shape {table.shape} and type "
+                             f"{table.dtype}, expected {shape} float64")
+    if not _PROCESS_TABLES:
+        for table in tables:
+            table.setflags(write=False)
+        _PROCESS_TABLES.append(tables)
+
+
+def adiabat_tables() -> AdiabatTables:
+    """The pseudo-adiabat lookup tables of this process: installed, or built once."""
+    if not _PROCESS_TABLES:
+        _PROCESS_TABLES.append(build_adiabat_tables())
+    return _PROCESS_TABLES[0]
 
 
 # ---------------------------------------------------------------------------------------

@@ -39,7 +39,10 @@ from gridstab.constants import (
     STANDARD_GRAVITY,
 )
 from gridstab.layers import LAYER_FIELDS, layer_diagnostics
-from gridstab.moisture import dew_point_from_mixing_ratio_scalar
+from gridstab.moisture import (
+    dew_point_from_mixing_ratio_scalar,
+    ln_saturation_vapour_pressure_scalar,
+)
 from gridstab.parcels import (
     PARCEL_FIELDS,
     PARCEL_NAMES,
@@ -174,22 +177,30 @@ INTEGER_OUTPUTS = {
 
 @numba.njit(cache=True, nogil=True)
 def _compact(
-    c, pressure, ln_p_all, temperature, ln_t_all, mixing_ratio, ln_r_all, theta_all, tv_all,
+    c, pressure, shared_pressure, ln_p_row, exner_row, temperature, mixing_ratio,
     height, has_height, surface_pressure, has_surface, surface_t, surface_r, has_surface_air,
-    P, LNP, T, LNT, R, LNR, TH, TV, Z, IDX,
+    P, LNP, T, R, TH, TV, Z, IDX,
 ):
-    """Copy column c's valid levels bottom-up into the work arrays; return their count."""
+    """Copy column c's valid levels bottom-up into the work arrays; return their count.
+
+    Fills pressure (Pa), ln p, temperature (K), mixing ratio (floored, kg/kg), theta and
+    virtual temperature (K), height (m, NaN without heights) and the input level index
+    (-1 for the near-surface level). With ``shared_pressure`` every column has the
+    levels of row 0 of ``pressure``, whose ln p and (p0/p)^kappa are given per level;
+    no transcendental function is evaluated then.
+    """
     nlev = pressure.shape[1]
+    row = 0 if shared_pressure else c
     first = -1
     last = -1
     for k in range(nlev):
-        if pressure[c, k] > 0.0:
+        if pressure[row, k] > 0.0:
             if first < 0:
                 first = k
             last = k
     if first < 0:
         return 0
-    top_down = pressure[c, first] < pressure[c, last]
+    top_down = pressure[row, first] < pressure[row, last]
     ps = surface_pressure[c] if has_surface else math.inf
     if not ps > 0.0:
         ps = math.inf
@@ -200,18 +211,18 @@ def _compact(
             P[0] = ps
             LNP[0] = math.log(ps)
             T[0] = surface_t[c]
-            LNT[0] = math.log(surface_t[c])
             R[0] = r
-            LNR[0] = math.log(r)
-            TH[0] = math.exp(LNT[0] + KAPPA * (LN_REFERENCE_PRESSURE - LNP[0]))
+            TH[0] = surface_t[c] * math.exp(KAPPA * (LN_REFERENCE_PRESSURE - LNP[0]))
             TV[0] = virtual_temperature_scalar(T[0], r)
             Z[0] = math.nan
             IDX[0] = -1
             count = 1
     for step in range(nlev):
         k = nlev - 1 - step if top_down else step
-        p = pressure[c, k]
-        if not (p > 0.0 and temperature[c, k] > 0.0 and math.isfinite(mixing_ratio[c, k])):
+        p = pressure[row, k]
+        t = temperature[c, k]
+        r = mixing_ratio[c, k]
+        if not (p > 0.0 and t > 0.0 and math.isfinite(r)):
             continue
         if has_height and not math.isfinite(height[c, k]):
             continue
@@ -222,18 +233,48 @@ def _compact(
                 count -= 1  # a level at the surface replaces the surface values
             else:
                 continue  # not above the previous level
+        if r < MIXING_RATIO_FLOOR:
+            r = MIXING_RATIO_FLOOR
         P[count] = p
-        LNP[count] = ln_p_all[c, k]
-        T[count] = temperature[c, k]
-        LNT[count] = ln_t_all[c, k]
-        R[count] = mixing_ratio[c, k]
-        LNR[count] = ln_r_all[c, k]
-        TH[count] = theta_all[c, k]
-        TV[count] = tv_all[c, k]
+        if shared_pressure:
+            LNP[count] = ln_p_row[k]
+            TH[count] = t * exner_row[k]
+        else:
+            LNP[count] = math.log(p)
+            TH[count] = t * math.exp(KAPPA * (LN_REFERENCE_PRESSURE - LNP[count]))
+        T[count] = t
+        R[count] = r
+        TV[count] = t * (1.0 + r / EPSILON) / (1.0 + r)
         Z[count] = height[c, k] if has_height else math.nan
         IDX[count] = k
         count += 1
     return count
+
+
+@numba.njit(cache=True, nogil=True)
+def _level_theta_e(i, LNP, T, R, P, theta_e_table, label, with_theta_es, THES, LTHE, THE):
+    """theta_e (and with ``with_theta_es`` theta_es) of compacted level i, in place.
+
+    Without theta_es at hand, supersaturation is found by comparing the vapour pressure
+    with e_s, and only then is theta_es looked up (see ``capped_ln_theta_e``).
+    """
+    ln_t = math.log(T[i])
+    ln_theta_e = ln_theta_e_from_all_logs(ln_t, LNP[i], R[i], math.log(R[i]), theta_e_table)
+    if with_theta_es:
+        j, v0, v1, v2, v3 = pressure_stencil_or_none(LNP[i])
+        if j >= 0 and LNP[i] <= LN_P_BOTTOM:
+            ln_theta_es = ln_theta_es_with_stencil(T[i], j, v0, v1, v2, v3, label)
+        else:
+            ln_theta_es = ln_theta_es_scalar(T[i], P[i], label)
+        THES[i] = math.exp(ln_theta_es)
+        ln_theta_e = capped_ln_theta_e(ln_theta_e, ln_theta_es, T[i], P[i], R[i])
+    else:
+        ln_e = LNP[i] + math.log(R[i] / (EPSILON + R[i]))
+        if not ln_e < ln_saturation_vapour_pressure_scalar(T[i])[0]:
+            ln_theta_es = ln_theta_es_scalar(T[i], P[i], label)
+            ln_theta_e = capped_ln_theta_e(ln_theta_e, ln_theta_es, T[i], P[i], R[i])
+    LTHE[i] = ln_theta_e
+    THE[i] = math.exp(ln_theta_e)
 
 
 @numba.njit(cache=True, nogil=True)
@@ -294,7 +335,7 @@ def _classic_indices(LNP, T, R, count, parcel_table, label, index_out, c):
 
 @numba.njit(cache=True, nogil=True)
 def _diagnose(
-    pressure, ln_p_all, temperature, ln_t_all, mixing_ratio, ln_r_all, theta_all, tv_all,
+    pressure, shared_pressure, ln_p_row, exner_row, temperature, mixing_ratio,
     height, has_height, surface_pressure, has_surface, surface_height, has_surface_height,
     surface_t, surface_r, has_surface_air,
     reversible, virtual, ml_depth, mu_depth, largest_gap, dry_band, moist_band,
@@ -302,14 +343,12 @@ def _diagnose(
     parcel_table, label, theta_e_table,
     parcels_out, thick_out, index_out, level_out, layer_out, layer_flags,
 ):
-    ncol, nlev = pressure.shape
+    ncol, nlev = temperature.shape
     size = nlev + 1
     P = np.empty(size)
     LNP = np.empty(size)
     T = np.empty(size)
-    LNT = np.empty(size)
     R = np.empty(size)
-    LNR = np.empty(size)
     TV = np.empty(size)
     Z = np.empty(size)
     TH = np.empty(size)
@@ -328,14 +367,19 @@ def _diagnose(
     hyps = DRY_AIR_GAS_CONSTANT / STANDARD_GRAVITY
     for c in range(ncol):
         n = _compact(
-            c, pressure, ln_p_all, temperature, ln_t_all, mixing_ratio, ln_r_all, theta_all,
-            tv_all, height, has_height, surface_pressure, has_surface, surface_t, surface_r,
-            has_surface_air, P, LNP, T, LNT, R, LNR, TH, TV, Z, IDX,
+            c, pressure, shared_pressure, ln_p_row, exner_row, temperature, mixing_ratio,
+            height, has_height, surface_pressure, has_surface, surface_t, surface_r,
+            has_surface_air, P, LNP, T, R, TH, TV, Z, IDX,
         )
         if n < 2:
             continue
+        ps = surface_pressure[c] if has_surface else math.nan
+        ground_known = has_surface and ps > 0.0
+        # the parcels' layers start at the surface (the gap below the lowest valid level
+        # filled with its theta and r), unless the gap is wider than the largest gap
+        # filled: then they start at the lowest valid level
+        bottom = ps if (ground_known and P[0] < ps <= P[0] + largest_gap) else P[0]
         for i in range(n):
-            LTH[i] = LNT[i] + KAPPA * (LN_REFERENCE_PRESSURE - LNP[i])
             # the label table shares its pressure rows with the parcel table
             j, v0, v1, v2, v3 = pressure_stencil_or_none(LNP[i])
             LEVEL_STENCIL[i] = j
@@ -343,16 +387,6 @@ def _diagnose(
             WEIGHTS[0, i, 1] = v1
             WEIGHTS[0, i, 2] = v2
             WEIGHTS[0, i, 3] = v3
-            if j >= 0 and LNP[i] <= LN_P_BOTTOM:
-                ln_theta_es = ln_theta_es_with_stencil(T[i], j, v0, v1, v2, v3, label)
-            else:
-                ln_theta_es = ln_theta_es_scalar(T[i], P[i], label)
-            THES[i] = math.exp(ln_theta_es)
-            LTHE[i] = capped_ln_theta_e(
-                ln_theta_e_from_all_logs(LNT[i], LNP[i], R[i], LNR[i], theta_e_table),
-                ln_theta_es, T[i], P[i], R[i],
-            )
-            THE[i] = math.exp(LTHE[i])
             if i < n - 1:
                 j, v0, v1, v2, v3 = pressure_stencil_or_none(0.5 * (LNP[i] + LNP[i + 1]))
                 MID_STENCIL[i] = j
@@ -360,12 +394,22 @@ def _diagnose(
                 WEIGHTS[1, i, 1] = v1
                 WEIGHTS[1, i, 2] = v2
                 WEIGHTS[1, i, 3] = v3
+        # theta_e where it is used: every level with per-level output, else the
+        # most-unstable search window (and the bottom of the low thick layer)
+        for i in range(n):
+            if not want_levels and i > 0 and P[i] < bottom - mu_depth:
+                break
+            _level_theta_e(i, LNP, T, R, P, theta_e_table, label, want_levels, THES, LTHE, THE)
+        if want_levels:
+            for i in range(n):
+                LTH[i] = math.log(TH[i])
+        else:
+            LTH[0] = math.log(TH[0])
+            THES[0] = math.exp(ln_theta_es_scalar(T[0], P[0], label))
         MINTH[n - 1] = TH[n - 1]
         for i in range(n - 2, -1, -1):
             MINTH[i] = min(TH[i], MINTH[i + 1])
         # heights above ground
-        ps = surface_pressure[c] if has_surface else math.nan
-        ground_known = has_surface and ps > 0.0
         if has_height:
             if IDX[0] == -1:
                 Z[0] = surface_height[c] if has_surface_height else (
@@ -438,10 +482,6 @@ def _diagnose(
         if P[0] >= 85000.0 and P[n - 1] <= 50000.0:
             _classic_indices(LNP, T, R, n, parcel_table, label, index_out, c)
         # parcels
-        # the parcels' layers start at the surface (the gap below the lowest valid level
-        # filled with its theta and r), unless the gap is wider than the largest gap
-        # filled: then they start at the lowest valid level
-        bottom = ps if (ground_known and P[0] < ps <= P[0] + largest_gap) else P[0]
         for which in range(3):
             if which == 0:
                 p0, t0, r0 = P[0], T[0], R[0]
@@ -490,10 +530,11 @@ def diagnose_columns(
 
     Parameters
     ----------
-    pressure : array_like, shape (columns, levels)
+    pressure : array_like, shape (columns, levels) or (levels,)
         Air pressure, Pa. Levels may run either way (per column), may be NaN anywhere,
         and may lie below the surface (they are skipped). A 1-D array of levels is
-        broadcast to every column.
+        shared by every column (pressure-level data; its logarithms and Exner factors
+        are then computed once).
     temperature : array_like, shape (columns, levels)
         Air temperature, K.
     mixing_ratio : array_like, shape (columns, levels)
@@ -533,12 +574,19 @@ def diagnose_columns(
     if t.ndim != 2:
         raise ValueError(f"temperature must have shape (columns, levels), got {t.shape}")
     ncol, nlev = t.shape
-    p = np.asarray(pressure, dtype=np.float64)
-    if p.ndim == 1:
-        p = np.broadcast_to(p, t.shape)
-    p = np.ascontiguousarray(p)
-    if p.shape != t.shape:
-        raise ValueError(f"pressure has shape {p.shape}, expected {t.shape}")
+    p = np.asarray(pressure)
+    if p.ndim == 2 and p.shape[0] > 0 and p.strides[0] == 0:
+        p = p[0]  # one row broadcast to every column (numpy.broadcast_to)
+    p = np.asarray(p, dtype=np.float64)
+    shared_pressure = p.ndim == 1
+    if shared_pressure:
+        if p.shape != (nlev,):
+            raise ValueError(f"pressure has shape {p.shape}, expected ({nlev},) or {t.shape}")
+        p = np.ascontiguousarray(p.reshape(1, nlev))
+    else:
+        p = np.ascontiguousarray(p)
+        if p.shape != t.shape:
+            raise ValueError(f"pressure has shape {p.shape}, expected {t.shape}")
     r, _ = _as_columns("mixing_ratio", mixing_ratio, t.shape)
     z, has_z = _as_columns("height", height, t.shape)
     ps, has_ps = _as_columns("surface_pressure", surface_pressure, (ncol,))
@@ -546,15 +594,10 @@ def diagnose_columns(
     ts, has_ts = _as_columns("surface_temperature", surface_temperature, (ncol,))
     rs, has_rs = _as_columns("surface_mixing_ratio", surface_mixing_ratio, (ncol,))
     tables = adiabat_tables()
+    # ln p and (p0/p)^kappa of shared levels, once for all columns
     with np.errstate(invalid="ignore", divide="ignore"):
-        valid_p = np.where(p > 0, p, np.nan)
-        ln_p = np.log(valid_p)
-        ln_t = np.log(np.where(t > 0, t, np.nan))
-        r_floor = np.maximum(r, MIXING_RATIO_FLOOR)
-        r_floor = np.where(np.isnan(r), np.nan, r_floor)
-        ln_r = np.log(r_floor)
-        theta = np.exp(ln_t + KAPPA * (LN_REFERENCE_PRESSURE - ln_p))
-        tv = t * (1.0 + r_floor / EPSILON) / (1.0 + r_floor)
+        ln_p_row = np.log(np.where(p[0] > 0, p[0], np.nan))
+        exner_row = np.exp(KAPPA * (LN_REFERENCE_PRESSURE - ln_p_row))
     parcels_out = np.full((ncol, 3, len(PARCEL_FIELDS)), np.nan)
     thick_out = np.full((ncol, 2, len(LAYER_FIELDS)), np.nan)
     index_out = np.full((ncol, len(INDEX_FIELDS)), np.nan)
@@ -566,7 +609,7 @@ def diagnose_columns(
     layer_flags = np.full((2,) + layer_shape[1:], -1, dtype=np.int8)
     if ncol:
         _diagnose(
-            p, ln_p, t, ln_t, r_floor, ln_r, theta, tv, z, has_z, ps, has_ps, zs, has_zs,
+            p, shared_pressure, ln_p_row, exner_row, t, r, z, has_z, ps, has_ps, zs, has_zs,
             ts, rs, has_ts and has_rs,
             options.ascent == "reversible", bool(options.virtual_temperature_correction),
             options.mixed_layer_depth_hpa * 100.0, options.most_unstable_depth_hpa * 100.0,

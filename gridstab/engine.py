@@ -20,6 +20,7 @@ import xarray as xr
 
 from gridstab._version import __version__
 from gridstab.columns import INTEGER_OUTPUTS, OUTPUTS, ColumnOptions, diagnose_columns
+from gridstab.tablecache import ensure_tables
 from gridstab.errors import InputError
 from gridstab.layers import CLASS_MEANINGS
 
@@ -194,6 +195,7 @@ def choose_chunks(template: xr.DataArray, level_dim: str, budget_mib: float) -> 
 
 def _block(pressure, temperature, mixing_ratio, *extra, names, extra_names, options, nlev,
            per_level):
+    ensure_tables()  # read once per process (each worker) from the on-disk cache
     shape = temperature.shape[:-1]
     ncol = int(np.prod(shape)) if shape else 1
     flat = lambda a: np.broadcast_to(a, shape + (nlev,)).reshape(ncol, nlev)  # noqa: E731
@@ -203,7 +205,13 @@ def _block(pressure, temperature, mixing_ratio, *extra, names, extra_names, opti
             kwargs[key] = flat(value)
         else:
             kwargs[key] = np.broadcast_to(value, shape).reshape(ncol)
-    result = diagnose_columns(flat(pressure), flat(temperature), flat(mixing_ratio),
+    # pressure levels shared by every column (1-D after dropping broadcast axes) stay 1-D
+    levels = np.asarray(pressure)
+    if levels.size == nlev:
+        levels = levels.reshape(nlev)
+    else:
+        levels = flat(levels)
+    result = diagnose_columns(levels, flat(temperature), flat(mixing_ratio),
                               options=options, per_level=per_level, **kwargs)
     outputs = []
     for name in names:

@@ -182,3 +182,13 @@ def test_supersaturated_levels_have_the_theta_e_of_saturated_air():
     np.testing.assert_allclose(out["theta_e"][0, :4], ref["theta_e"][0, :4], atol=0.01)
     assert out["parcel_pressure_mu"][0] == ref["parcel_pressure_mu"][0]
     assert out["cape_mu"][0] == pytest.approx(ref["cape_mu"][0], rel=0.01)
+
+
+def test_shared_pressure_levels_give_identical_results():
+    # pressure levels given once (1-D, as the engine passes pressure-level data) or
+    # repeated for every column: the same numbers, bit for bit
+    p, t, r = batch(8, count=5)
+    shared = diagnose_columns(p[0], t, r)
+    repeated = diagnose_columns(np.ascontiguousarray(p), t, r)
+    for name in OUTPUTS:
+        np.testing.assert_array_equal(shared[name], repeated[name], err_msg=name)
