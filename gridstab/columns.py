@@ -251,30 +251,57 @@ def _compact(
     return count
 
 
-@numba.njit(cache=True, nogil=True)
-def _level_theta_e(i, LNP, T, R, P, theta_e_table, label, with_theta_es, THES, LTHE, THE):
-    """theta_e (and with ``with_theta_es`` theta_es) of compacted level i, in place.
+@numba.njit(cache=True, nogil=True, inline="always")
+def _store_stencil(ln_p, stencils, weights, plane, i):
+    """Store the parcel table's pressure stencil at ln p as entry i of ``plane``."""
+    j, v0, v1, v2, v3 = pressure_stencil_or_none(ln_p)
+    stencils[i] = j
+    weights[plane, i, 0] = v0
+    weights[plane, i, 1] = v1
+    weights[plane, i, 2] = v2
+    weights[plane, i, 3] = v3
 
-    Without theta_es at hand, supersaturation is found by comparing the vapour pressure
-    with e_s, and only then is theta_es looked up (see ``capped_ln_theta_e``).
+
+@numba.njit(cache=True, nogil=True)
+def _level_theta_e(i, ln_t, ln_r, LNP, T, R, P, theta_e_table, label, THES, LTHE, THE):
+    """theta_e of compacted level i (K, in place), from ln T and ln r.
+
+    Supersaturation is found by comparing the vapour pressure with e_s, and only then
+    is theta_es looked up (see ``capped_ln_theta_e``).
     """
-    ln_t = math.log(T[i])
-    ln_theta_e = ln_theta_e_from_all_logs(ln_t, LNP[i], R[i], math.log(R[i]), theta_e_table)
-    if with_theta_es:
-        j, v0, v1, v2, v3 = pressure_stencil_or_none(LNP[i])
+    ln_theta_e = ln_theta_e_from_all_logs(ln_t, LNP[i], R[i], ln_r, theta_e_table)
+    ln_e = LNP[i] + ln_r - math.log(EPSILON + R[i])
+    if not ln_e < ln_saturation_vapour_pressure_scalar(T[i])[0]:
+        ln_theta_e = capped_ln_theta_e(
+            ln_theta_e, ln_theta_es_scalar(T[i], P[i], label), T[i], P[i], R[i]
+        )
+    LTHE[i] = ln_theta_e
+    THE[i] = math.exp(ln_theta_e)
+
+
+@numba.njit(cache=True, nogil=True)
+def _all_levels(n, LNT, LNR, LNP, T, R, P, TH, LEVEL_STENCIL, WEIGHTS, theta_e_table, label,
+                LTH, THES, LTHE, THE):
+    """theta, theta_e and theta_es of every compacted level (per-level output), in place.
+
+    The theta_es look-up reuses the level's pressure stencil of the parcel table.
+    """
+    for i in range(n):
+        LTH[i] = LNT[i] + KAPPA * (LN_REFERENCE_PRESSURE - LNP[i])
+        j = LEVEL_STENCIL[i]
         if j >= 0 and LNP[i] <= LN_P_BOTTOM:
-            ln_theta_es = ln_theta_es_with_stencil(T[i], j, v0, v1, v2, v3, label)
+            ln_theta_es = ln_theta_es_with_stencil(
+                T[i], j, WEIGHTS[0, i, 0], WEIGHTS[0, i, 1], WEIGHTS[0, i, 2], WEIGHTS[0, i, 3],
+                label,
+            )
         else:
             ln_theta_es = ln_theta_es_scalar(T[i], P[i], label)
         THES[i] = math.exp(ln_theta_es)
-        ln_theta_e = capped_ln_theta_e(ln_theta_e, ln_theta_es, T[i], P[i], R[i])
-    else:
-        ln_e = LNP[i] + math.log(R[i] / (EPSILON + R[i]))
-        if not ln_e < ln_saturation_vapour_pressure_scalar(T[i])[0]:
-            ln_theta_es = ln_theta_es_scalar(T[i], P[i], label)
-            ln_theta_e = capped_ln_theta_e(ln_theta_e, ln_theta_es, T[i], P[i], R[i])
-    LTHE[i] = ln_theta_e
-    THE[i] = math.exp(ln_theta_e)
+        LTHE[i] = capped_ln_theta_e(
+            ln_theta_e_from_all_logs(LNT[i], LNP[i], R[i], LNR[i], theta_e_table),
+            ln_theta_es, T[i], P[i], R[i],
+        )
+        THE[i] = math.exp(LTHE[i])
 
 
 @numba.njit(cache=True, nogil=True)
@@ -336,7 +363,7 @@ def _classic_indices(LNP, T, R, count, parcel_table, label, index_out, c):
 @numba.njit(cache=True, nogil=True)
 def _diagnose(
     pressure, shared_pressure, ln_p_row, exner_row, temperature, mixing_ratio,
-    height, has_height, surface_pressure, has_surface, surface_height, has_surface_height,
+    ln_t_all, ln_r_all, height, has_height, surface_pressure, has_surface, surface_height, has_surface_height,
     surface_t, surface_r, has_surface_air,
     reversible, virtual, ml_depth, mu_depth, largest_gap, dry_band, moist_band,
     low_depth, upper_bottom, upper_top, li_pressure, want_levels,
@@ -349,6 +376,8 @@ def _diagnose(
     LNP = np.empty(size)
     T = np.empty(size)
     R = np.empty(size)
+    LNT = np.empty(size)
+    LNR = np.empty(size)
     TV = np.empty(size)
     Z = np.empty(size)
     TH = np.empty(size)
@@ -361,6 +390,16 @@ def _diagnose(
     LEVEL_STENCIL = np.empty(size, dtype=np.int64)
     MID_STENCIL = np.empty(size, dtype=np.int64)
     WEIGHTS = np.zeros((2, size, 4))
+    # stencils of the shared levels (row 0) and of the middles between neighbours
+    SHARED_STENCIL = np.full((2, nlev), -1, dtype=np.int64)
+    SHARED_WEIGHTS = np.zeros((2, nlev, 4))
+    if shared_pressure:
+        for k in range(nlev):
+            if pressure[0, k] > 0.0:
+                _store_stencil(ln_p_row[k], SHARED_STENCIL[0], SHARED_WEIGHTS, 0, k)
+                if k < nlev - 1 and pressure[0, k + 1] > 0.0:
+                    _store_stencil(0.5 * (ln_p_row[k] + ln_p_row[k + 1]), SHARED_STENCIL[1],
+                                   SHARED_WEIGHTS, 1, k)
     row = np.empty(parcels_out.shape[2])
     profile = np.empty((LN_P_COUNT, 2))
     filled = np.empty(2, dtype=np.int64)
@@ -379,31 +418,41 @@ def _diagnose(
         # filled with its theta and r), unless the gap is wider than the largest gap
         # filled: then they start at the lowest valid level
         bottom = ps if (ground_known and P[0] < ps <= P[0] + largest_gap) else P[0]
+        # pressure stencils of the parcel table at the levels and the layers' middles
+        # (the label table shares its rows); for shared levels from the block's own
         for i in range(n):
-            # the label table shares its pressure rows with the parcel table
-            j, v0, v1, v2, v3 = pressure_stencil_or_none(LNP[i])
-            LEVEL_STENCIL[i] = j
-            WEIGHTS[0, i, 0] = v0
-            WEIGHTS[0, i, 1] = v1
-            WEIGHTS[0, i, 2] = v2
-            WEIGHTS[0, i, 3] = v3
+            k = IDX[i]
+            if shared_pressure and k >= 0:
+                LEVEL_STENCIL[i] = SHARED_STENCIL[0, k]
+                for q in range(4):
+                    WEIGHTS[0, i, q] = SHARED_WEIGHTS[0, k, q]
+            else:
+                _store_stencil(LNP[i], LEVEL_STENCIL, WEIGHTS, 0, i)
             if i < n - 1:
-                j, v0, v1, v2, v3 = pressure_stencil_or_none(0.5 * (LNP[i] + LNP[i + 1]))
-                MID_STENCIL[i] = j
-                WEIGHTS[1, i, 0] = v0
-                WEIGHTS[1, i, 1] = v1
-                WEIGHTS[1, i, 2] = v2
-                WEIGHTS[1, i, 3] = v3
-        # theta_e where it is used: every level with per-level output, else the
-        # most-unstable search window (and the bottom of the low thick layer)
-        for i in range(n):
-            if not want_levels and i > 0 and P[i] < bottom - mu_depth:
-                break
-            _level_theta_e(i, LNP, T, R, P, theta_e_table, label, want_levels, THES, LTHE, THE)
+                k1 = IDX[i + 1]
+                if shared_pressure and k >= 0 and k1 >= 0 and abs(k - k1) == 1:
+                    middle = min(k, k1)
+                    MID_STENCIL[i] = SHARED_STENCIL[1, middle]
+                    for q in range(4):
+                        WEIGHTS[1, i, q] = SHARED_WEIGHTS[1, middle, q]
+                else:
+                    _store_stencil(0.5 * (LNP[i] + LNP[i + 1]), MID_STENCIL, WEIGHTS, 1, i)
+        # theta_e where it is used: every level with per-level output (with logs
+        # computed beforehand, vectorised), else the most-unstable search window (which
+        # includes the bottom of the low thick layer)
         if want_levels:
             for i in range(n):
-                LTH[i] = math.log(TH[i])
+                k = IDX[i]
+                LNT[i] = ln_t_all[c, k] if k >= 0 else math.log(T[i])
+                LNR[i] = ln_r_all[c, k] if k >= 0 else math.log(R[i])
+            _all_levels(n, LNT, LNR, LNP, T, R, P, TH, LEVEL_STENCIL, WEIGHTS, theta_e_table,
+                        label, LTH, THES, LTHE, THE)
         else:
+            for i in range(n):
+                if i > 0 and P[i] < bottom - mu_depth:
+                    break
+                _level_theta_e(i, math.log(T[i]), math.log(R[i]), LNP, T, R, P, theta_e_table,
+                               label, THES, LTHE, THE)
             LTH[0] = math.log(TH[0])
             THES[0] = math.exp(ln_theta_es_scalar(T[0], P[0], label))
         MINTH[n - 1] = TH[n - 1]
@@ -594,10 +643,16 @@ def diagnose_columns(
     ts, has_ts = _as_columns("surface_temperature", surface_temperature, (ncol,))
     rs, has_rs = _as_columns("surface_mixing_ratio", surface_mixing_ratio, (ncol,))
     tables = adiabat_tables()
-    # ln p and (p0/p)^kappa of shared levels, once for all columns
+    # ln p and (p0/p)^kappa of shared levels, once for all columns; with per-level
+    # output ln T and ln r of every level, vectorised (the kernel needs them all then)
     with np.errstate(invalid="ignore", divide="ignore"):
         ln_p_row = np.log(np.where(p[0] > 0, p[0], np.nan))
         exner_row = np.exp(KAPPA * (LN_REFERENCE_PRESSURE - ln_p_row))
+        if per_level:
+            ln_t_all = np.log(np.where(t > 0, t, np.nan))
+            ln_r_all = np.log(np.maximum(r, MIXING_RATIO_FLOOR))
+        else:
+            ln_t_all = ln_r_all = np.empty((0, 0))
     parcels_out = np.full((ncol, 3, len(PARCEL_FIELDS)), np.nan)
     thick_out = np.full((ncol, 2, len(LAYER_FIELDS)), np.nan)
     index_out = np.full((ncol, len(INDEX_FIELDS)), np.nan)
@@ -609,7 +664,8 @@ def diagnose_columns(
     layer_flags = np.full((2,) + layer_shape[1:], -1, dtype=np.int8)
     if ncol:
         _diagnose(
-            p, shared_pressure, ln_p_row, exner_row, t, r, z, has_z, ps, has_ps, zs, has_zs,
+            p, shared_pressure, ln_p_row, exner_row, t, r, ln_t_all, ln_r_all, z, has_z,
+            ps, has_ps, zs, has_zs,
             ts, rs, has_ts and has_rs,
             options.ascent == "reversible", bool(options.virtual_temperature_correction),
             options.mixed_layer_depth_hpa * 100.0, options.most_unstable_depth_hpa * 100.0,

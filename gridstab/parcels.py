@@ -429,7 +429,22 @@ def lift_parcel(
         a2 = 2.0 * buoyancy_a - 4.0 * buoyancy_m + 2.0 * buoyancy_b
         roots0 = 1.0
         roots1 = 1.0
-        if abs(a2) < 1e-12 * (abs(b1) + abs(c0) + 1e-30):
+        # Fast path: B has one sign at both ends and the middle, and the parabola's
+        # extremum (if inside the segment) has that sign too: no crossing, one piece.
+        one_sign = (
+            c0 != 0.0
+            and buoyancy_m != 0.0
+            and buoyancy_b != 0.0
+            and (c0 > 0.0) == (buoyancy_m > 0.0)
+            and (c0 > 0.0) == (buoyancy_b > 0.0)
+        )
+        if one_sign and a2 != 0.0:
+            vertex = -0.5 * b1 / a2
+            if 0.0 < vertex < 1.0 and (c0 + vertex * (b1 + vertex * a2) > 0.0) != (c0 > 0.0):
+                one_sign = False
+        if one_sign:
+            pass  # roots stay at 1: a single piece from 0 to 1
+        elif abs(a2) < 1e-12 * (abs(b1) + abs(c0) + 1e-30):
             if b1 != 0.0:
                 roots0 = -c0 / b1
         else:
